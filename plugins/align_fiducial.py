@@ -1,0 +1,1 @@
+"""Built-in plugin `align_fiducial` (not yet filled in: provides nothing)."""

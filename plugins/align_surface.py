@@ -1,0 +1,1 @@
+"""Built-in plugin `align_surface` (not yet filled in: provides nothing)."""

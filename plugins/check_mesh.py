@@ -1,0 +1,1 @@
+"""Built-in plugin `check_mesh` (not yet filled in: provides nothing)."""

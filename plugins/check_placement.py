@@ -1,0 +1,1 @@
+"""Built-in plugin `check_placement` (not yet filled in: provides nothing)."""

@@ -1,0 +1,1 @@
+"""Built-in plugin `check_sensors` (not yet filled in: provides nothing)."""

@@ -1,0 +1,1 @@
+"""Built-in plugin `export_hdf5` (not yet filled in: provides nothing)."""

@@ -1,0 +1,1 @@
+"""Built-in plugin `export_mat` (not yet filled in: provides nothing)."""

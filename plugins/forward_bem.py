@@ -1,0 +1,1 @@
+"""Built-in plugin `forward_bem` (not yet filled in: provides nothing)."""

@@ -1,0 +1,1 @@
+"""Built-in plugin `forward_spheres` (not yet filled in: provides nothing)."""

@@ -1,0 +1,1 @@
+"""Built-in plugin `inverse_dipole` (not yet filled in: provides nothing)."""

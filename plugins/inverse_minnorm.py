@@ -1,0 +1,1 @@
+"""Built-in plugin `inverse_minnorm` (not yet filled in: provides nothing)."""

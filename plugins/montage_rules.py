@@ -1,0 +1,1 @@
+"""Built-in plugin `montage_rules` (not yet filled in: provides nothing)."""

@@ -1,0 +1,1 @@
+"""Built-in plugin `patch_quadric` (not yet filled in: provides nothing)."""

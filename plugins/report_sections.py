@@ -1,0 +1,1 @@
+"""Built-in plugin `report_sections` (not yet filled in: provides nothing)."""

@@ -1,0 +1,1 @@
+"""Built-in plugin `sensor_table` (not yet filled in: provides nothing)."""

@@ -1,0 +1,1 @@
+"""Built-in plugin `surface_trimesh` (not yet filled in: provides nothing)."""

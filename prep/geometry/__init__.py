@@ -1,0 +1,1 @@
+"""Pure geometry kernels on arrays (metres): one module per topic, no I/O, never mutate inputs."""
