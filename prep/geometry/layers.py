@@ -14,7 +14,8 @@ import numpy as np
 __all__ = [
     "icosphere", "face_normals", "vertex_normals", "signed_volume", "solid_angle_sum",
     "inside", "star_shaped", "ray_radii", "remesh_radial", "offset_inward", "nearest_distance",
-    "nesting", "interior_centre",
+    "nesting", "interior_centre", "edge_use_counts", "is_closed", "orient_outward", "derive_inward",
+    "triangle_solid_angles", "icosphere_subdivisions",
 ]
 
 _PHI = (1.0 + 5.0 ** 0.5) / 2.0
@@ -250,3 +251,50 @@ def nesting(inner_vertices: np.ndarray, inner_faces: np.ndarray,
     min_gap = 0.0 if not enc.all() else float(gap.min())
     return {"outside": np.flatnonzero(~enc), "gap": gap, "min_gap": min_gap,
             "argmin": int(np.argmin(gap)), "outer_inside": np.flatnonzero(outer_in)}
+
+
+def edge_use_counts(faces: np.ndarray) -> np.ndarray:
+    """(e,) how many faces use each undirected edge; a closed 2-manifold has all counts 2."""
+    f = np.asarray(faces)
+    e = np.sort(np.concatenate([f[:, [0, 1]], f[:, [1, 2]], f[:, [2, 0]]]), axis=1)
+    _, counts = np.unique(e, axis=0, return_counts=True)
+    return counts
+
+
+def is_closed(faces: np.ndarray) -> bool:
+    """True if every edge is shared by exactly two faces."""
+    f = np.asarray(faces)
+    return bool(len(f) and np.all(edge_use_counts(f) == 2))
+
+
+def orient_outward(vertices: np.ndarray, faces: np.ndarray) -> tuple[np.ndarray, bool]:
+    """Faces of a consistently wound closed mesh turned outward; True if they were flipped."""
+    f = np.asarray(faces)
+    if signed_volume(vertices, f) < 0:
+        return f[:, ::-1].copy(), True
+    return f.copy(), False
+
+
+def derive_inward(outer_vertices: np.ndarray, faces: np.ndarray, centre: np.ndarray, thickness: float,
+                  min_gap: float, smoothing: int = 20) -> np.ndarray:
+    """A layer ``thickness`` metres inside a radially meshed outer layer, nesting guaranteed.
+
+    ``outer_vertices`` must lie on rays from ``centre`` (as made by :func:`remesh_radial`).
+    The outer layer is offset inward along smoothed normals, the offset surface is
+    sampled back on the same rays, and each ray radius is capped at the outer radius
+    minus ``max(min_gap, thickness / 2)``. Because a flat triangle's radius along
+    any ray inside its cone increases with each corner's radius, vertex-wise
+    radii below the outer ones keep the whole layer strictly inside.
+
+    Returns (n, 3) metres on the same rays (same faces).
+    """
+    c = np.asarray(centre, dtype=float)
+    rel = np.asarray(outer_vertices, dtype=float) - c
+    r_out = np.linalg.norm(rel, axis=1)
+    dirs = rel / r_out[:, None]
+    moved = offset_inward(outer_vertices, faces, thickness, smoothing)
+    r_new = ray_radii(dirs, moved, faces, c)
+    cap = r_out - max(float(min_gap), 0.5 * float(thickness))
+    r_new = np.where(np.isfinite(r_new), np.minimum(r_new, cap), cap)
+    r_new = np.maximum(r_new, 0.05 * r_out)
+    return c + dirs * r_new[:, None]
