@@ -425,6 +425,7 @@ def _write(registry: Registry, recipe: Recipe, inputs: SubjectInputs, path: Path
         "fit_rms_mm": _mm(align.meta["alignment"]["metrics"].get("rms_m")),
         "condition_number": _find_number(cond, "condition_number"),
         "head_model": forward.meta["head_model"]["kind"],
+        "flagged_electrodes": sum(bool(e["codes"]) for e in align.meta["placement"]["per_electrode"]),
         "findings": {s: sum(f.severity == s for f in findings) for s in ("fail", "warn", "info")},
     }
     return RunResult(subject=recipe.subject, bundle=path, findings=findings, summary=summary, verdict=v)
