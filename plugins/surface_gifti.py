@@ -18,8 +18,8 @@ import numpy as np
 from prep import hookimpl
 from prep.descriptors import SurfaceReader
 from prep.errors import ReadError
-from prep.geometry.meshunits import nonfinite_vertices, resolve_mesh_units
-from prep.model import Provenance, Surface
+from prep.geometry.meshunits import surface_from_file_arrays
+from prep.model import Surface
 
 UNIT_KEYS = ("units", "unit", "lengthunit", "length_unit", "spatialunits")
 
@@ -83,16 +83,9 @@ def read_gifti(path: str | Path, units: str | None = None) -> Surface:
     faces = faces.astype(np.int64)
     if faces.min() < 0 or faces.max() >= len(vertices):
         raise ReadError(p, rec, f"data array {rec} (TRIANGLE) indexes vertices outside 0..{len(vertices) - 1}")
-    findings = nonfinite_vertices(vertices, file=str(p), source="surface reader 'gifti'")
     declared = _declared_unit(points[0].meta, img.meta)
-    try:
-        mu = resolve_mesh_units(vertices, file=str(p), option=units, declared=declared, convention="mm")
-    except KeyError:
-        bad_unit = units if units is not None else declared
-        raise ReadError(p, None, f"unknown length unit {bad_unit!r} (use m, cm or mm)") from None
-    return Surface(vertices=vertices * mu.scale, faces=faces, role="unknown",
-                   provenance=Provenance(file=str(p), reader="gifti", unit=mu.unit, unit_source=mu.source),
-                   findings=tuple(findings) + mu.findings)
+    return surface_from_file_arrays(vertices, faces, file=str(p), reader="gifti", option=units,
+                                    declared=declared, convention="mm")
 
 
 @hookimpl

@@ -20,8 +20,8 @@ import numpy as np
 from prep import hookimpl
 from prep.descriptors import SurfaceReader
 from prep.errors import ReadError
-from prep.geometry.meshunits import nonfinite_vertices, resolve_mesh_units
-from prep.model import Provenance, Surface
+from prep.geometry.meshunits import surface_from_file_arrays
+from prep.model import Surface
 
 SUFFIXES = (".ply", ".stl", ".obj", ".off")
 
@@ -133,16 +133,9 @@ def read_mesh(path: str | Path, units: str | None = None) -> Surface:
         raise ReadError(p, None, f"no triangles found: not a {suffix} triangle mesh, or an empty one")
     if faces.shape[1] != 3 or faces.min() < 0 or faces.max() >= len(vertices):
         raise ReadError(p, None, "faces are not triangles indexing the file's vertices")
-    findings = nonfinite_vertices(vertices, file=str(p), source="surface reader 'trimesh'")
     if suffix == ".stl":
         vertices, faces = _merge_exact(vertices, faces)
-    try:
-        mu = resolve_mesh_units(vertices, file=str(p), option=units)
-    except KeyError:
-        raise ReadError(p, None, f"unknown length unit {units!r} (use m, cm or mm)") from None
-    return Surface(vertices=vertices * mu.scale, faces=faces, role="unknown",
-                   provenance=Provenance(file=str(p), reader="trimesh", unit=mu.unit, unit_source=mu.source),
-                   findings=tuple(findings) + mu.findings)
+    return surface_from_file_arrays(vertices, faces, file=str(p), reader="trimesh", option=units)
 
 
 @hookimpl

@@ -18,10 +18,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..model import Finding
+from ..errors import ReadError
+from ..model import Finding, Provenance, Surface
 from ..units import canonical_unit, guess_length_unit, unit_scale
 
-__all__ = ["MeshUnits", "PLAUSIBLE_EXTENT_M", "mesh_extent", "nonfinite_vertices", "resolve_mesh_units"]
+__all__ = ["MeshUnits", "PLAUSIBLE_EXTENT_M", "mesh_extent", "nonfinite_vertices", "resolve_mesh_units",
+           "surface_from_file_arrays"]
 
 #: (low, high) plausible largest bounding-box side of a head or cortex mesh, metres (common practice).
 PLAUSIBLE_EXTENT_M = (0.04, 0.35)
@@ -128,3 +130,32 @@ def nonfinite_vertices(vertices: np.ndarray, *, file: str, source: str) -> tuple
     return (Finding(code="input.nonfinite", severity="fail", subjects=(file,),
                     message=f"{file}: {bad.size} vertices have NaN or infinite coordinates (first: vertex {int(bad[0])})",
                     values={"n_vertices": int(bad.size), "first": int(bad[0])}, source=source),)
+
+
+def surface_from_file_arrays(vertices: np.ndarray, faces: np.ndarray, *, file: str, reader: str,
+                             option: str | None = None, declared: str | None = None,
+                             convention: str | None = None) -> Surface:
+    """What every surface reader returns: a Surface in metres with its unit findings.
+
+    Parameters
+    ----------
+    vertices : (n, 3) float64, file units
+    faces : (k, 3) int64
+    file, reader : str
+        For provenance and messages.
+    option, declared, convention : str, optional
+        See :func:`resolve_mesh_units`.
+
+    Raises
+    ------
+    ReadError
+        ``option`` or ``declared`` is not a length unit.
+    """
+    findings = nonfinite_vertices(vertices, file=file, source=f"surface reader '{reader}'")
+    try:
+        mu = resolve_mesh_units(vertices, file=file, option=option, declared=declared, convention=convention)
+    except KeyError as exc:
+        raise ReadError(file, None, f"unknown length unit {exc.args[0]!r} (use m, cm or mm)") from None
+    return Surface(vertices=np.asarray(vertices, dtype=np.float64) * mu.scale, faces=faces, role="unknown",
+                   provenance=Provenance(file=file, reader=reader, unit=mu.unit, unit_source=mu.source),
+                   findings=findings + mu.findings)
