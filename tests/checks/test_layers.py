@@ -154,3 +154,14 @@ def test_layers_command_without_skull_needs_derive(tmp_path, capsys) -> None:
     path.write_bytes(trimesh.Trimesh(s.vertices, s.faces, process=False).export(file_type="ply"))
     assert cli.main(["layers", "--scalp", str(path), "--mesh-units", "m"]) == 2
     assert "--derive" in capsys.readouterr().err
+
+
+def test_sources_outside_the_brain_are_named() -> None:
+    from prep import VolumeConductor
+    from prep.layers import sources_outside
+
+    cond = VolumeConductor(kind="layers", conductivities=[0.33, 0.0042, 0.33], layers=tuple(_head()))
+    found = sources_outside(cond, np.array([[0.0, 0.0, 0.05], [0.0, 0.0, 0.09], [0.2, 0.0, 0.0]]))
+    assert len(found) == 1 and found[0].code == "patches.outside"
+    assert found[0].values["rows"] == [1, 2] and "rows 1, 2" in found[0].message
+    assert sources_outside(cond, np.zeros((1, 3))) == []
