@@ -54,7 +54,8 @@ def _sections(layers, path: Path) -> Path:  # noqa: ANN001
     from ..render import figure, save_figure_png
 
     centre = layers[-1].vertices.mean(axis=0)
-    fig = figure(figsize=(12, 4.2))
+    fig = figure(figsize=(12.5, 4.2))
+    fig.subplots_adjust(wspace=0.4)
     colours = {"inner_skull": "#b0413e", "outer_skull": "#3e6fb0", "scalp": "#3a8f4b"}
     planes = (("sagittal (x = c)", 0, (1, 2)), ("coronal (y = c)", 1, (0, 2)), ("axial (z = c)", 2, (0, 1)))
     for i, (title, axis, (u, w)) in enumerate(planes):
