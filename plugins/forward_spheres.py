@@ -20,6 +20,7 @@ from typing import Any
 import numpy as np
 
 from prep import ForwardModel, ForwardSolver, UsageError, VolumeConductor, hookimpl
+from prep.geometry.spheres import project_to_sphere
 
 from . import _forward_spheres_series as series
 
@@ -33,13 +34,12 @@ DEFAULTS: dict[str, Any] = {
 
 def _project(conductor: VolumeConductor, positions: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Unit directions (n, 3) from the centre and positions (n, 3) m on the outer sphere."""
-    rel = np.asarray(positions, dtype=np.float64) - conductor.centre
-    norm = np.linalg.norm(rel, axis=1)
-    if np.any(norm == 0) or not np.all(np.isfinite(norm)):
-        bad = int(np.flatnonzero((norm == 0) | ~np.isfinite(norm))[0])
-        raise UsageError(f"sensor {bad} is at the sphere centre or not finite: cannot project it onto the scalp sphere")
-    dirs = rel / norm[:, None]
-    return dirs, conductor.centre + conductor.radii[-1] * dirs
+    projected, valid = project_to_sphere(positions, conductor.centre, float(conductor.radii[-1]))
+    if not valid.all():
+        bad = int(np.flatnonzero(~valid)[0])
+        raise UsageError(f"sensor {bad} is at the sphere centre or not finite: cannot project it onto the "
+                         f"outer sphere")
+    return (projected - conductor.centre) / conductor.radii[-1], projected
 
 
 def _reference_row(labels: Sequence[str], reference: str) -> int | None:
