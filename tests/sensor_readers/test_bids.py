@@ -131,3 +131,11 @@ def test_writer_nan_is_na(reg, tmp_path):
     tsv, side = reg.get("sensor_writer", "bids").write(s, tmp_path / "electrodes.tsv")
     assert side.name == "coordsystem.json" and "n/a" in tsv.read_text()
     _check_bids(tsv, side)
+
+
+def test_electrode_named_like_a_fiducial_survives_the_round_trip(reg, tmp_path):
+    s = Sensors(labels=("Nz", "Cz", "HEOG"), positions=[[0, 0.09, 0], [0, 0, 0.09], [0.03, 0.08, -0.01]],
+                frame="anatomy", kinds=("eeg", "eeg", "eog"))
+    tsv, _ = reg.get("sensor_writer", "bids").write(s, tmp_path / "sub-t_electrodes.tsv")
+    back = read_sensors(reg, tsv)
+    assert back.labels == s.labels and back.kinds == s.kinds and "nasion" not in back.fiducials
