@@ -1,0 +1,269 @@
+"""Co-registration and placement QC, as the ``align`` command and the pipeline run it.
+
+:func:`place_sensors` asks the registry for an aligner, moves the sensors into
+the scalp's frame, projects them onto the scalp, asks a montage-template plugin
+for the labelled reference layout on this scalp, and runs every check whose
+target is ``"placement"``. The helpers above it are shared by aligner plugins
+(fiducial pairing, the digitizer-handedness test, too-few-points errors).
+"""
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field, replace
+from typing import Any
+
+import numpy as np
+
+from .descriptors import Alignment, CheckReport
+from .errors import UsageError
+from .geometry.registration import spread_ratio
+from .geometry.surface import closest_points
+from .model import FIDUCIALS, Finding, Sensors, Surface
+from .registry import Registry
+
+__all__ = ["PlacementResult", "place_sensors", "paired_fiducials", "digitizer_handedness", "fit_points",
+           "too_few_points", "mirror_matrix", "PREFERRED_SYSTEMS"]
+
+#: the montage-template system asked for, first available wins (10-5 holds the 10-10 and 10-20 labels)
+PREFERRED_SYSTEMS = ("10-5", "10-10", "10-20")
+#: below this ratio of singular values three fiducials count as collinear (common practice)
+COLLINEAR_RATIO = 0.05
+
+
+# ------------------------------------------------------------------ helpers for aligners
+def too_few_points(reason: str, advice: str) -> UsageError:
+    """The UsageError aligners raise when the inputs cannot fix a transform."""
+    return UsageError(f"input.too-few-points: {reason}; {advice}")
+
+
+def paired_fiducials(digitized: Mapping[str, np.ndarray], anatomy: Mapping[str, np.ndarray] | None,
+                     *, required: bool = True) -> tuple[np.ndarray, np.ndarray, tuple[str, ...]] | None:
+    """Fiducials present (and finite) in both frames, as paired (k, 3) arrays.
+
+    Parameters
+    ----------
+    digitized : mapping name -> (3,) metres, sensors' frame
+    anatomy : mapping name -> (3,) metres, scalp frame, or None
+    required : bool
+        Raise when fewer than three non-collinear pairs exist; otherwise return None.
+
+    Returns
+    -------
+    (source (k, 3), target (k, 3), names) or None
+
+    Raises
+    ------
+    UsageError
+        ``input.too-few-points: ...`` with advice, when ``required``.
+    """
+    anatomy = anatomy or {}
+    names = tuple(n for n in (*FIDUCIALS, "inion") if n in digitized and n in anatomy
+                  and np.isfinite(digitized[n]).all() and np.isfinite(anatomy[n]).all())
+    if len(names) < 3:
+        if not required:
+            return None
+        missing_d = [n for n in FIDUCIALS if n not in digitized]
+        missing_a = [n for n in FIDUCIALS if n not in anatomy]
+        where = []
+        if missing_d:
+            where.append(f"digitized file lacks {', '.join(missing_d)}")
+        if missing_a:
+            where.append(f"anatomy fiducials lack {', '.join(missing_a)}")
+        raise too_few_points(f"{len(names)} fiducial(s) in both frames ({'; '.join(where) or 'non-finite values'})",
+                             "give nasion, LPA and RPA in both the electrode file and --fiducials, "
+                             "or use --method surface with head-shape points")
+    src = np.array([digitized[n] for n in names])
+    dst = np.array([anatomy[n] for n in names])
+    for pts, which in ((src, "digitized"), (dst, "anatomy")):
+        if spread_ratio(pts) < COLLINEAR_RATIO:
+            if not required:
+                return None
+            raise too_few_points(f"the {which} fiducials {', '.join(names)} are (nearly) collinear",
+                                 "check that nasion, LPA and RPA were not swapped or duplicated")
+    return src, dst, names
+
+
+def digitizer_handedness(sensors: Sensors) -> int:
+    """+1 if the digitizer frame looks right-handed, -1 if mirrored, 0 if undecidable.
+
+    With nasion, LPA and RPA, ``(rpa - lpa) x (nasion - lpa)`` points up in a
+    right-handed frame, where the electrodes (and head shape) lie above the
+    fiducial plane. A mirrored frame turns the cross product down.
+    """
+    f = sensors.fiducials
+    if not all(n in f and np.isfinite(f[n]).all() for n in FIDUCIALS):
+        return 0
+    up = np.cross(f["rpa"] - f["lpa"], f["nasion"] - f["lpa"])
+    pts = fit_points(sensors)
+    if len(pts) < 3 or not np.linalg.norm(up) > 0:
+        return 0
+    origin = (f["lpa"] + f["rpa"]) / 2
+    side = (pts - origin) @ (up / np.linalg.norm(up))
+    frac = float(np.mean(side > 0))
+    if frac >= 0.75:
+        return 1
+    if frac <= 0.25:
+        return -1
+    return 0
+
+
+def mirror_matrix() -> np.ndarray:
+    """(4, 4) reflection x -> -x (undoes a left-handed digitizer frame)."""
+    return np.diag([-1.0, 1.0, 1.0, 1.0])
+
+
+def fit_points(sensors: Sensors, use_electrodes: bool = True) -> np.ndarray:
+    """Finite surface points of a subject: head shape then EEG electrodes, (m, 3) metres."""
+    parts = [sensors.headshape]
+    if use_electrodes:
+        parts.append(sensors.positions[sensors.eeg_mask])
+    pts = np.vstack(parts) if parts else np.zeros((0, 3))
+    return pts[np.isfinite(pts).all(axis=1)]
+
+
+# ------------------------------------------------------------------ orchestration
+@dataclass(frozen=True, kw_only=True)
+class PlacementResult:
+    """What :func:`place_sensors` returns.
+
+    Attributes
+    ----------
+    alignment : Alignment
+        The aligner's result (sensors' frame -> scalp frame).
+    placed : Sensors
+        Every channel as digitized, moved into the scalp's frame.
+    projected : Sensors
+        Same channels with positions projected onto the scalp (closest surface point).
+    report : CheckReport
+        Merged report of every placement check (metrics keyed by check name).
+    findings : tuple of Finding
+        Aligner findings, notes of this step, then check findings. Reader
+        findings of the inputs are not repeated here.
+    """
+
+    alignment: Alignment
+    placed: Sensors
+    projected: Sensors
+    report: CheckReport
+    findings: tuple[Finding, ...] = field(default_factory=tuple)
+
+
+def _note(message: str) -> Finding:
+    return Finding(code="placement.unchecked", severity="info", message=message, source="placement")
+
+
+def _reference_layout(registry: Registry, scalp: Surface, fiducials: Mapping[str, np.ndarray] | None,
+                      labels: tuple[str, ...]) -> tuple[Sensors | None, Finding | None]:
+    templates = registry.descriptors("montage_template")
+    if not templates:
+        return None, _note("no montage-template plugin is installed: swapped labels were not checked "
+                           "against a reference layout")
+    if not fiducials or not all(n in fiducials for n in FIDUCIALS):
+        return None, _note("no nasion/LPA/RPA in the scalp frame: the reference layout could not be "
+                           "placed, so swapped labels were not checked")
+    for desc in templates:
+        systems = tuple(getattr(desc, "systems", ()) or ())
+        system = next((s for s in PREFERRED_SYSTEMS if s in systems), systems[0] if systems else None)
+        kwargs = {"system": system} if system is not None else {}
+        try:
+            ref = registry.call(desc, "place", scalp, dict(fiducials),
+                                step=f"montage template '{desc.name}' placing {system}", **kwargs)
+        except UsageError as exc:
+            return None, _note(f"montage template '{desc.name}' could not place {system}: {exc}; "
+                               "swapped labels were not checked")
+        if isinstance(ref, Sensors) and set(ref.labels) & set(labels):
+            return ref, None
+    return None, _note("the montage templates share no label with these electrodes: swapped labels "
+                       "were not checked")
+
+
+def _check_kwargs(registry: Registry, desc: Any, check_options: Mapping[str, Any] | None) -> dict[str, Any]:
+    given = dict(check_options or {})
+    if desc.name in given and isinstance(given[desc.name], Mapping):
+        return registry.options(desc, given[desc.name], f"placement check '{desc.name}' options")
+    flat = {k: v for k, v in given.items() if not isinstance(v, Mapping) and k in desc.defaults}
+    return registry.options(desc, flat, f"placement check '{desc.name}' options")
+
+
+def _unknown_check_options(checks: list[Any], check_options: Mapping[str, Any] | None) -> None:
+    names = {d.name for d in checks}
+    known = {k for d in checks for k in d.defaults}
+    for key, value in (check_options or {}).items():
+        if isinstance(value, Mapping) and key in names:
+            continue
+        if key not in known:
+            raise UsageError(f"placement check options: unknown option '{key}' "
+                             f"(known: {', '.join(sorted(known)) or 'none'})")
+
+
+def place_sensors(registry: Registry, sensors: Sensors, scalp: Surface,
+                  anatomy_fiducials: Mapping[str, np.ndarray] | None, *, method: str = "surface",
+                  options: Mapping[str, Any] | None = None,
+                  check_options: Mapping[str, Any] | None = None) -> PlacementResult:
+    """Co-register ``sensors`` to ``scalp`` and check every electrode's placement.
+
+    Parameters
+    ----------
+    registry : Registry
+    sensors : Sensors
+        Any frame (normally ``device``); metres.
+    scalp : Surface
+        Closed, outward-oriented scalp mesh in the anatomy frame.
+    anatomy_fiducials : mapping name -> (3,) metres in the scalp's frame, or None
+    method : str
+        Aligner name (``"surface"`` or ``"fiducial"`` among the built-ins).
+    options : mapping, optional
+        Aligner options (validated against its ``defaults``).
+    check_options : mapping, optional
+        Either ``{check_name: {option: value}}`` or a flat ``{option: value}``
+        applied to every placement check that knows the option.
+
+    Returns
+    -------
+    PlacementResult
+
+    Raises
+    ------
+    UsageError
+        Unknown aligner or option; ``input.too-few-points`` from the aligner.
+    """
+    aligner = registry.get("aligner", method)
+    opts = registry.options(aligner, options, f"aligner '{method}' options")
+    alignment = registry.call(aligner, "align", sensors, scalp, anatomy_fiducials,
+                              step=f"aligner '{method}'", **opts)
+    if not isinstance(alignment, Alignment):
+        raise UsageError(f"aligner '{method}' returned {type(alignment).__name__}, not Alignment")
+    placed = sensors.transformed(alignment.transform)
+    finite = np.isfinite(placed.positions).all(axis=1)
+    proj = placed.positions.copy()
+    if finite.any():
+        proj[finite] = closest_points(scalp.vertices, scalp.faces, placed.positions[finite])[0]
+    projected = replace(placed, positions=proj)
+
+    fids = dict(anatomy_fiducials) if anatomy_fiducials else dict(placed.fiducials)
+    eeg = placed.select(placed.eeg_mask)
+    findings: list[Finding] = list(alignment.findings)
+    checks = [d for d in registry.descriptors("check") if d.target == "placement"]
+    _unknown_check_options(checks, check_options)
+    reference, note = _reference_layout(registry, scalp, fids, eeg.labels)
+    if note is not None:
+        findings.append(note)
+    merged_findings: list[Finding] = []
+    metrics: dict[str, Any] = {}
+    arrays: dict[str, np.ndarray] = {}
+    for desc in checks:
+        kwargs = _check_kwargs(registry, desc, check_options)
+        for key, value in (("fiducials", fids or None), ("reference", reference)):
+            if registry.accepts(desc.run, key):
+                kwargs[key] = value
+        out = registry.call(desc, "run", sensors=eeg, scalp=scalp, step=f"placement check '{desc.name}'", **kwargs)
+        if isinstance(out, CheckReport):
+            merged_findings.extend(out.findings)
+            metrics[desc.name] = dict(out.metrics)
+            arrays.update(out.arrays)
+        else:
+            merged_findings.extend(out or ())
+    findings.extend(merged_findings)
+    report = CheckReport(findings=tuple(merged_findings), metrics=metrics, arrays=arrays)
+    return PlacementResult(alignment=alignment, placed=placed, projected=projected, report=report,
+                           findings=tuple(findings))
