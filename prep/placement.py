@@ -14,6 +14,7 @@ from typing import Any
 
 import numpy as np
 
+from .checks import run_checks
 from .descriptors import Alignment, CheckReport
 from .errors import UsageError
 from .geometry.registration import spread_ratio
@@ -22,7 +23,7 @@ from .model import FIDUCIALS, Finding, Sensors, Surface
 from .registry import Registry
 
 __all__ = ["PlacementResult", "place_sensors", "paired_fiducials", "digitizer_handedness", "fit_points",
-           "too_few_points", "mirror_matrix", "PREFERRED_SYSTEMS"]
+           "too_few_points", "mirror_matrix", "mirrored_finding", "PREFERRED_SYSTEMS"]
 
 #: the montage-template system asked for, first available wins (10-5 holds the 10-10 and 10-20 labels)
 PREFERRED_SYSTEMS = ("10-5", "10-10", "10-20")
@@ -107,6 +108,14 @@ def digitizer_handedness(sensors: Sensors) -> int:
     return 0
 
 
+def mirrored_finding(source: str) -> Finding:
+    """The finding for a left-handed digitizer frame (shared wording of the aligners)."""
+    return Finding(code="placement.mirrored", severity="fail", source=source,
+                   message="the digitized montage is left-right mirrored: the digitizer frame is left-handed "
+                           "(nasion, LPA and RPA turn the wrong way around the electrodes); the fit mirrored "
+                           "x -> -x to go on: fix the digitizer set-up or the file's axes")
+
+
 def mirror_matrix() -> np.ndarray:
     """(4, 4) reflection x -> -x (undoes a left-handed digitizer frame)."""
     return np.diag([-1.0, 1.0, 1.0, 1.0])
@@ -177,25 +186,6 @@ def _reference_layout(registry: Registry, scalp: Surface, fiducials: Mapping[str
                        "were not checked")
 
 
-def _check_kwargs(registry: Registry, desc: Any, check_options: Mapping[str, Any] | None) -> dict[str, Any]:
-    given = dict(check_options or {})
-    if desc.name in given and isinstance(given[desc.name], Mapping):
-        return registry.options(desc, given[desc.name], f"placement check '{desc.name}' options")
-    flat = {k: v for k, v in given.items() if not isinstance(v, Mapping) and k in desc.defaults}
-    return registry.options(desc, flat, f"placement check '{desc.name}' options")
-
-
-def _unknown_check_options(checks: list[Any], check_options: Mapping[str, Any] | None) -> None:
-    names = {d.name for d in checks}
-    known = {k for d in checks for k in d.defaults}
-    for key, value in (check_options or {}).items():
-        if isinstance(value, Mapping) and key in names:
-            continue
-        if key not in known:
-            raise UsageError(f"placement check options: unknown option '{key}' "
-                             f"(known: {', '.join(sorted(known)) or 'none'})")
-
-
 def place_sensors(registry: Registry, sensors: Sensors, scalp: Surface,
                   anatomy_fiducials: Mapping[str, np.ndarray] | None, *, method: str = "surface",
                   options: Mapping[str, Any] | None = None,
@@ -215,8 +205,8 @@ def place_sensors(registry: Registry, sensors: Sensors, scalp: Surface,
     options : mapping, optional
         Aligner options (validated against its ``defaults``).
     check_options : mapping, optional
-        Either ``{check_name: {option: value}}`` or a flat ``{option: value}``
-        applied to every placement check that knows the option.
+        A flat ``{option: value}`` namespace: each placement check receives the
+        keys its ``defaults`` declare (as :func:`prep.checks.run_checks`).
 
     Returns
     -------
@@ -243,27 +233,11 @@ def place_sensors(registry: Registry, sensors: Sensors, scalp: Surface,
     fids = dict(anatomy_fiducials) if anatomy_fiducials else dict(placed.fiducials)
     eeg = placed.select(placed.eeg_mask)
     findings: list[Finding] = list(alignment.findings)
-    checks = [d for d in registry.descriptors("check") if d.target == "placement"]
-    _unknown_check_options(checks, check_options)
     reference, note = _reference_layout(registry, scalp, fids, eeg.labels)
     if note is not None:
         findings.append(note)
-    merged_findings: list[Finding] = []
-    metrics: dict[str, Any] = {}
-    arrays: dict[str, np.ndarray] = {}
-    for desc in checks:
-        kwargs = _check_kwargs(registry, desc, check_options)
-        for key, value in (("fiducials", fids or None), ("reference", reference)):
-            if registry.accepts(desc.run, key):
-                kwargs[key] = value
-        out = registry.call(desc, "run", sensors=eeg, scalp=scalp, step=f"placement check '{desc.name}'", **kwargs)
-        if isinstance(out, CheckReport):
-            merged_findings.extend(out.findings)
-            metrics[desc.name] = dict(out.metrics)
-            arrays.update(out.arrays)
-        else:
-            merged_findings.extend(out or ())
-    findings.extend(merged_findings)
-    report = CheckReport(findings=tuple(merged_findings), metrics=metrics, arrays=arrays)
+    report = run_checks(registry, "placement", options=check_options, sensors=eeg, scalp=scalp,
+                        fiducials=fids or None, reference=reference)
+    findings.extend(report.findings)
     return PlacementResult(alignment=alignment, placed=placed, projected=projected, report=report,
                            findings=tuple(findings))

@@ -102,10 +102,13 @@ def rotation_angle_deg(rotation: ArrayLike) -> float:
     return float(np.degrees(np.arccos(np.clip((np.trace(r) - 1) / 2, -1.0, 1.0))))
 
 
-def huber_weights(residuals: ArrayLike, scale: float, k: float = 1.345) -> FloatArray:
-    """IRLS weights of Huber's loss (Huber 1964): 1 inside ``k * scale``, ``k * scale / |r|`` outside."""
+def huber_weights(residuals: ArrayLike, scale: ArrayLike, k: float = 1.345) -> FloatArray:
+    """IRLS weights of Huber's loss (Huber 1964): 1 inside ``k * scale``, ``k * scale / |r|`` outside.
+
+    ``scale`` is a float or an array broadcasting against ``residuals``.
+    """
     r = np.abs(np.asarray(residuals, dtype=float))
-    c = k * scale
+    c = k * np.asarray(scale, dtype=float)
     return np.where(r <= c, 1.0, c / np.maximum(r, 1e-300))
 
 
@@ -188,9 +191,9 @@ Query = Callable[..., tuple[FloatArray, FloatArray, np.ndarray]]
 
 
 def robust_icp(points: ArrayLike, query: Query, normals_of: Callable[[np.ndarray], FloatArray],
-               init: ArrayLike, *, landmarks: ArrayLike | None = None, landmark_targets: ArrayLike | None = None,
-               landmark_sigma: float = 0.003, surface_sigma: float = 0.0015, max_iter: int = 40,
-               tol_m: float = 1e-6, huber_k: float = 1.345, reject_factor: float = 3.0,
+               init: ArrayLike, *, groups: ArrayLike | None = None, landmarks: ArrayLike | None = None,
+               landmark_targets: ArrayLike | None = None, landmark_sigma: float = 0.003, max_iter: int = 40,
+               tol_m: float = 5e-5, huber_k: float = 1.345, reject_factor: float = 3.0,
                reject_floor: float = 0.005, scale_floor: float = 0.0005, damping: float = 1e-9) -> IcpResult:
     """Robust point-to-plane ICP of ``points`` onto a surface.
 
@@ -202,9 +205,14 @@ def robust_icp(points: ArrayLike, query: Query, normals_of: Callable[[np.ndarray
     normals_of : callable ``(face (n,)) -> (n, 3)`` unit outward normals
     init : (4, 4) float
         Starting transform (source -> target).
+    groups : (n,) int, optional
+        Point classes with their own noise level (e.g. head shape 0, electrodes 1):
+        each gets its own robust scale and is weighted by its inverse variance.
     landmarks, landmark_targets : (m, 3) float, optional
         Paired points (source and target frame) fitted point-to-point with
-        standard deviation ``landmark_sigma`` against ``surface_sigma``.
+        standard deviation ``landmark_sigma`` (m).
+    tol_m : float
+        Stop when a step moves no point by more than this (m).
     reject_factor, reject_floor : float
         A point is a gross outlier if ``|d| > max(reject_floor, reject_factor * scale)``.
 
@@ -213,19 +221,28 @@ def robust_icp(points: ArrayLike, query: Query, normals_of: Callable[[np.ndarray
     IcpResult
     """
     p = np.asarray(points, dtype=float)
+    g = np.zeros(len(p), dtype=np.int64) if groups is None else np.asarray(groups, dtype=np.int64)
     lm = None if landmarks is None else np.asarray(landmarks, dtype=float)
     lt = None if landmark_targets is None else np.asarray(landmark_targets, dtype=float)
     n_lm = 0 if lm is None else len(lm)
-    lm_w = np.full(3 * n_lm, (surface_sigma / landmark_sigma) ** 2)
+    lm_w = np.full(3 * n_lm, 1.0 / landmark_sigma ** 2)
     m = np.asarray(init, dtype=float).copy()
     converged = False
     it = 0
+    keep = np.ones(len(p), dtype=bool)
+
+    def weigh(dist: np.ndarray, prior: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        scale = np.empty(len(dist))
+        for k in np.unique(g):
+            sel = g == k
+            scale[sel] = robust_scale(dist[sel & prior] if (sel & prior).any() else dist[sel], scale_floor)
+        inl = np.abs(dist) <= np.maximum(reject_floor, reject_factor * scale)
+        return huber_weights(dist, scale, huber_k) * inl / scale ** 2, inl, scale
+
     for it in range(1, max_iter + 1):
         x = p @ m[:3, :3].T + m[:3, 3]
         closest, dist, face = query(x, exact=False)
-        scale = robust_scale(dist, scale_floor)
-        inliers = np.abs(dist) <= max(reject_floor, reject_factor * scale)
-        w = huber_weights(dist, scale, huber_k) * inliers
+        w, keep, _ = weigh(dist, np.ones(len(p), dtype=bool))
         xl = None if lm is None else lm @ m[:3, :3].T + m[:3, 3]
         a, b = point_to_plane_system(x, closest, normals_of(face), xl, lt)
         step = _solve_step(a, b, np.concatenate([w, lm_w]), damping)
@@ -236,9 +253,8 @@ def robust_icp(points: ArrayLike, query: Query, normals_of: Callable[[np.ndarray
             break
     x = p @ m[:3, :3].T + m[:3, 3]
     closest, dist, face = query(x, exact=True)
-    scale = robust_scale(dist[inliers], scale_floor)
-    inliers = np.abs(dist) <= max(reject_floor, reject_factor * scale)
-    w = huber_weights(dist, scale, huber_k) * inliers
+    w, inliers, scales = weigh(dist, keep)
+    scale = float(np.sqrt(np.mean(scales ** 2)))
     xl = None if lm is None else lm @ m[:3, :3].T + m[:3, 3]
     a, b = point_to_plane_system(x, closest, normals_of(face), xl, lt)
     return IcpResult(matrix=m, distances=dist, inliers=inliers, scale=scale, iterations=it,
