@@ -269,9 +269,8 @@ def run_cohort(cohort: Cohort, *, workers: int = 1, scheduler: str | None = None
         One result per subject, in cohort order.
     """
     done = on_done or (lambda r: None)
-    cohort.work.mkdir(parents=True, exist_ok=True)
-    cohort.out.mkdir(parents=True, exist_ok=True)
     with work_lock(cohort.work):
+        cohort.out.mkdir(parents=True, exist_ok=True)
         _clean_partials(cohort.work)
         _clean_partials(cohort.out)
         tasks = list(cohort.tasks)

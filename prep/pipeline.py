@@ -26,7 +26,7 @@ from .recipe import Recipe
 from .registry import Registry
 from .stepcache import StepCache, step_key
 
-__all__ = ["SubjectInputs", "StepResult", "RunResult", "read_inputs", "prepare_subject", "verdict"]
+__all__ = ["SubjectInputs", "StepResult", "RunResult", "read_inputs", "prepare_subject", "validate_recipe", "verdict"]
 
 Advance = Callable[[str | None], None]
 
@@ -285,6 +285,22 @@ def step_passport(registry: Registry, recipe: Recipe, align: StepResult, patches
 
 
 # ------------------------------------------------------------------ orchestration
+def validate_recipe(registry: Registry, recipe: Recipe) -> None:
+    """Check every step's plugin and options before anything is read or computed."""
+    for section, kind in (("align", "aligner"), ("patches", "patch_maker")):
+        desc = registry.get(kind, recipe.method(section))
+        registry.options(desc, recipe.plugin_options(section), recipe.where(section))
+    model = recipe.method("head_model")
+    kinds = {"spheres": "spheres", "bem": "layers"}
+    if model not in kinds:
+        raise UsageError(f"{recipe.where('head_model')}: model must be 'spheres' or 'bem', got {model!r}")
+    solvers = [d for d in registry.descriptors("forward_solver") if d.conductor_kind == kinds[model]]
+    if not solvers:
+        raise UsageError(f"{recipe.where('head_model')}: no forward solver for '{model}' is installed")
+    registry.options(solvers[0], recipe.plugin_options("head_model"), recipe.where("head_model"))
+    validate_check_options(registry, recipe.steps.get("checks"), recipe.where("checks"))
+
+
 def _cached(cache: StepCache | None, step: str, parts: dict[str, Any],
             compute: Callable[[], StepResult]) -> tuple[StepResult, str]:
     key = step_key(step, parts)
@@ -335,7 +351,7 @@ def prepare_subject(registry: Registry, recipe: Recipe, *, out: str | os.PathLik
         bundle_path = bundle_path.with_suffix(".zip")
     if bundle_path.exists() and not force:
         raise UsageError(f"{bundle_path}: already exists; use --force to replace it")
-    validate_check_options(registry, recipe.steps.get("checks"), recipe.where("checks"))
+    validate_recipe(registry, recipe)
     inputs = read_inputs(registry, recipe)
     step("inputs")
     findings = list(inputs.findings)

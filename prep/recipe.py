@@ -116,6 +116,10 @@ def recipe_from_mapping(data: Mapping[str, Any], *, path: Path | None = None,
             raise UsageError(f"{where}: unknown section [{section}] (known: {', '.join(SECTIONS)})")
         if not isinstance(data[section], Mapping):
             raise UsageError(f"{where}: '{section}' must be a [section] table")
+    if "subject" not in data:
+        raise UsageError(f"{where}: the [subject] section is missing")
+    if "inputs" not in data:
+        raise UsageError(f"{where}: the [inputs] section is missing")
     for section, keys in SECTIONS.items():
         given = data.get(section, {})
         for key, (typ, required) in keys.items():
@@ -129,10 +133,6 @@ def recipe_from_mapping(data: Mapping[str, Any], *, path: Path | None = None,
             for key in given:
                 if key not in keys:
                     raise UsageError(f"{where}: [{section}] unknown key '{key}' (known: {', '.join(keys)})")
-    if "subject" not in data:
-        raise UsageError(f"{where}: the [subject] section is missing")
-    if "inputs" not in data:
-        raise UsageError(f"{where}: the [inputs] section is missing")
     subject = str(data["subject"]["id"]).strip()
     if not subject or any(c in subject for c in "/\\") or subject.startswith("."):
         raise UsageError(f"{where}: [subject] id {subject!r} must be a plain name (no slashes)")
