@@ -23,7 +23,7 @@ from .model import FIDUCIALS, Finding, Sensors, Surface
 from .registry import Registry
 
 __all__ = ["PlacementResult", "place_sensors", "paired_fiducials", "digitizer_handedness", "fit_points",
-           "too_few_points", "mirror_matrix", "mirrored_finding", "PREFERRED_SYSTEMS"]
+           "too_few_points", "mirror_matrix", "mirrored_finding", "placement_figure", "PREFERRED_SYSTEMS"]
 
 #: the montage-template system asked for, first available wins (10-5 holds the 10-10 and 10-20 labels)
 PREFERRED_SYSTEMS = ("10-5", "10-10", "10-20")
@@ -241,3 +241,51 @@ def place_sensors(registry: Registry, sensors: Sensors, scalp: Surface,
     findings.extend(report.findings)
     return PlacementResult(alignment=alignment, placed=placed, projected=projected, report=report,
                            findings=tuple(findings))
+
+
+# ------------------------------------------------------------------ picture
+def placement_figure(result: PlacementResult, scalp: Surface, path: Any, *, limit_m: float = 0.010) -> Any:
+    """Write a PNG: three views of the scalp with electrodes coloured by signed distance.
+
+    Electrodes named in a finding have their label written beside them (the
+    colour is never the only carrier of the verdict).
+
+    Parameters
+    ----------
+    result : PlacementResult
+    scalp : Surface
+    path : path of the PNG (written atomically)
+    limit_m : float
+        Colour scale runs from ``-limit_m`` (inside) to ``+limit_m`` (lifted).
+    """
+    from .render import figure, save_figure_png
+
+    pos = result.placed.positions
+    finite = np.isfinite(pos).all(axis=1)
+    d = np.full(len(pos), np.nan)
+    if finite.any():
+        d[finite] = closest_points(scalp.vertices, scalp.faces, pos[finite])[1]
+    flagged = {s for f in result.findings if f.severity != "info" for s in f.subjects}
+    fig = figure(figsize=(13, 4.8))
+    views = (("top (x right, y front)", 0, 1), ("side (y front, z up)", 1, 2), ("back (x right, z up)", 0, 2))
+    step = max(1, len(scalp.vertices) // 6000)
+    sc = None
+    for k, (title, i, j) in enumerate(views):
+        ax = fig.add_subplot(1, 3, k + 1)
+        v = scalp.vertices[::step]
+        ax.scatter(v[:, i] * 1e3, v[:, j] * 1e3, s=1, c="0.85", linewidths=0)
+        sc = ax.scatter(pos[finite, i] * 1e3, pos[finite, j] * 1e3, c=d[finite] * 1e3, cmap="coolwarm",
+                        vmin=-limit_m * 1e3, vmax=limit_m * 1e3, s=28, edgecolors="k", linewidths=0.4)
+        for lab, p in zip(result.placed.labels, pos):
+            if lab in flagged and np.isfinite(p).all():
+                ax.annotate(lab, (p[i] * 1e3, p[j] * 1e3), xytext=(4, 4), textcoords="offset points",
+                            fontsize=8, weight="bold")
+        ax.set_title(title, fontsize=9)
+        ax.set_aspect("equal")
+        ax.set_xlabel("mm", fontsize=8)
+        ax.tick_params(labelsize=7)
+    if sc is not None:
+        bar = fig.colorbar(sc, ax=fig.axes, shrink=0.8)
+        bar.set_label("signed distance to the scalp (mm, outside +)")
+    fig.suptitle(f"electrode placement: {len(flagged)} flagged electrode(s) labelled", fontsize=10)
+    return save_figure_png(fig, path)
