@@ -47,16 +47,25 @@ def self_intersecting_faces(vertices: FloatArray, faces: IntArray) -> BoolArray:
     tm = pymeshfix.PyTMesh()
     tm.set_quiet(True)
     tm.load_array(np.ascontiguousarray(vertices, dtype=np.float64), np.ascontiguousarray(f, dtype=np.int32))
-    sel = np.asarray(tm.select_intersecting_triangles(justproper=True), dtype=np.int64).reshape(-1, 3)
-    if len(sel) == 0:
+    raw = np.asarray(tm.select_intersecting_triangles(justproper=True), dtype=np.int64).reshape(-1, 3)
+    if len(raw) == 0:
         return np.zeros(len(f), dtype=bool)
-    n = int(max(f.max(), sel.max())) + 1
+    tm_faces = np.asarray(tm.return_faces(), dtype=np.int64)
+    n = int(max(f.max(), tm_faces.max())) + 1
 
     def key(t: np.ndarray) -> np.ndarray:
         s = np.sort(t, axis=1)
         return (s[:, 0] * n + s[:, 1]) * n + s[:, 2]
 
-    return np.isin(key(f), key(sel))
+    # pymeshfix 0.18 documents (m, 3) vertex triplets but fills the first m entries of the
+    # buffer with indices into its own face list (the rest is uninitialised); accept both layouts.
+    triplets_ok = bool(((raw >= 0) & (raw < n)).all()) and np.isin(key(raw), key(tm_faces)).all()
+    if not triplets_ok:
+        idx = raw.ravel()[:len(raw)]
+        if idx.min() < 0 or idx.max() >= len(tm_faces):
+            raise RuntimeError("pymeshfix returned an unrecognised self-intersection selection")
+        raw = tm_faces[idx]
+    return np.isin(key(f), key(raw))
 
 
 @dataclass(frozen=True)
@@ -258,7 +267,7 @@ def repair_surface(surface: Surface, *, merge_tol_rel: float = 1e-6) -> tuple[Su
     ec = edge_counts(f)
     closed_inward = (not ec.same_direction.any() and (ec.count == 2).all() and signed_volume(v, f) < 0)
     if ec.same_direction.any() or closed_inward:
-        mesh = trimesh.Trimesh(v, f, process=False)
+        mesh = trimesh.Trimesh(np.array(v), np.array(f), process=False)  # writable copies
         trimesh.repair.fix_normals(mesh, multibody=True)
         flipped = int(np.any(np.asarray(mesh.faces) != f, axis=1).sum())
         f = np.asarray(mesh.faces, dtype=np.int64)
