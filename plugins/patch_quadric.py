@@ -19,7 +19,7 @@ from prep.descriptors import PatchMaker
 from prep.errors import UsageError
 from prep.geometry.clearance import DEFAULT_MIN_DISTANCE_MM, clearance_findings, surface_clearance
 from prep.geometry.meshcheck import inspect_mesh, mesh_findings
-from prep.geometry.meshstats import components, face_areas, vertex_areas
+from prep.geometry.meshstats import face_areas, referenced, vertex_adjacency, vertex_areas
 from prep.geometry.patching import (assign_along_surface, count_for_spacing, decimation_seeds, patch_statistics,
                                     recentre_seeds)
 from prep.model import Finding, Patches, Surface
@@ -51,10 +51,10 @@ def _allocate(areas: np.ndarray, count: int) -> np.ndarray:
     return np.maximum(n, 1)
 
 
-def _main_pieces(surface: Surface, name: str, policy: str) -> tuple[np.ndarray, list[Finding]]:
-    """Faces to use (k,) bool, and the ``mesh.islands`` finding."""
+def _main_pieces(surface: Surface, labels: np.ndarray, name: str, policy: str) -> tuple[np.ndarray, list[Finding]]:
+    """Faces to use (k,) bool, and the ``mesh.islands`` finding; ``labels`` (n,) component per vertex."""
     v, f = surface.vertices, surface.faces
-    n_comp, labels = components(len(v), f)
+    n_comp = int(labels.max()) + 1
     face_lab = labels[f[:, 0]]
     comp_area = np.bincount(face_lab, weights=face_areas(v, f), minlength=n_comp)
     pieces = np.unique(face_lab)
@@ -133,6 +133,7 @@ def make(surfaces: Sequence[Surface], *, inner_skull: Surface | None = None, cou
         raise UsageError(f"patches: surfaces are in different frames: {', '.join(sorted(frames))}")
     findings: list[Finding] = []
     kept: list[np.ndarray] = []
+    graphs = []
     names = [_name(s, i) for i, s in enumerate(surfaces)]
     for s, name in zip(surfaces, names):
         if len(s.faces) == 0:
@@ -142,8 +143,9 @@ def make(surfaces: Sequence[Surface], *, inner_skull: Surface | None = None, cou
         report = inspect_mesh(s.vertices, s.faces, self_intersection=False)
         findings += [f for f in mesh_findings(report, name=name, must_be_closed=False, source=SOURCE)
                      if f.code != "mesh.islands"]
-        keep, fnd = _main_pieces(s, name, islands)
+        keep, fnd = _main_pieces(s, report.vertex_component, name, islands)
         kept.append(keep)
+        graphs.append(vertex_adjacency(s.vertices, s.faces, unique_edges=report.edges.unique))
         findings += fnd
     areas = np.array([face_areas(s.vertices, s.faces[k]).sum() for s, k in zip(surfaces, kept)])
     if spacing_mm > 0:
@@ -153,16 +155,16 @@ def make(surfaces: Sequence[Surface], *, inner_skull: Surface | None = None, cou
 
     cols: dict[str, list[np.ndarray]] = {k: [] for k in ("centres", "normals", "areas", "spread", "hemi", "vp")}
     offset = n_unref = n_unreached = 0
-    for s, keep, target in zip(surfaces, kept, targets):
+    for s, keep, target, graph in zip(surfaces, kept, targets, graphs):
         v, f = s.vertices, s.faces[keep]
-        used = np.unique(f)
-        n_unref += len(v) - len(np.unique(s.faces))
+        used = referenced(len(v), f)
+        n_unref += int((~referenced(len(v), s.faces)).sum())
         seeds = decimation_seeds(v, f, int(target))
         weights = vertex_areas(v, f)
-        patch, _ = assign_along_surface(v, f, seeds)
+        patch, _ = assign_along_surface(v, f, seeds, graph=graph)
         for _ in range(refine):
             seeds = recentre_seeds(v, patch, len(seeds), weights)
-            patch, _ = assign_along_surface(v, f, seeds)
+            patch, _ = assign_along_surface(v, f, seeds, graph=graph)
         # the centre: the member nearest the members' area-weighted centroid (the seed itself once converged)
         centres = v[recentre_seeds(v, patch, len(seeds), weights)]
         a, nrm, spr = patch_statistics(v, f, patch, len(seeds))

@@ -12,14 +12,14 @@ Codes (``docs/mesh-checks.md``): ``mesh.open``, ``mesh.non-manifold``,
 """
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 from scipy.spatial import cKDTree
 
 from .._typing import BoolArray, FloatArray, IntArray
 from ..model import Finding, Surface
-from .meshstats import components, degenerate_faces, edge_counts, face_areas, mean_edge_length
+from .meshstats import EdgeCounts, components, degenerate_faces, edge_counts, face_areas, mean_edge_length, referenced
 
 __all__ = ["MeshReport", "inspect_mesh", "mesh_findings", "repair_surface", "self_intersecting_faces",
            "signed_volume"]
@@ -91,6 +91,10 @@ class MeshReport:
         Area per piece, largest first.
     euler : int
         V - E + F over referenced vertices.
+    edges : EdgeCounts
+        The mesh's undirected edges (reusable: building them is the costly part).
+    vertex_component : (n,) int64
+        Component label per vertex (unreferenced vertices have their own).
     volume : float
         Signed enclosed volume, m^3 (meaningful for closed meshes).
     area : float
@@ -109,6 +113,8 @@ class MeshReport:
     euler: int
     volume: float
     area: float
+    edges: EdgeCounts = field(repr=False, default=None)
+    vertex_component: IntArray = field(repr=False, default=None)
 
     @property
     def closed(self) -> bool:
@@ -139,12 +145,13 @@ def inspect_mesh(vertices: FloatArray, faces: IntArray, *, self_intersection: bo
     v = np.asarray(vertices, dtype=np.float64)
     f = np.asarray(faces, dtype=np.int64)
     ec = edge_counts(f)
-    used = np.unique(f)
-    n_comp, labels = components(len(v), f)
+    used = np.flatnonzero(referenced(len(v), f))
+    n_comp, labels = components(len(v), f, unique_edges=ec.unique)
     fa = face_areas(v, f)
     comp_area = np.bincount(labels[f[:, 0]], weights=fa, minlength=n_comp) if len(f) else np.zeros(0)
     comp_area = np.sort(comp_area[np.unique(labels[used])])[::-1] if len(f) else comp_area
     return MeshReport(
+        edges=ec, vertex_component=labels,
         n_vertices=len(v), n_faces=len(f),
         boundary_edges=ec.unique[ec.count == 1], nonmanifold_edges=ec.unique[ec.count > 2],
         winding_conflict_edges=ec.unique[ec.same_direction],

@@ -24,8 +24,14 @@ from .._typing import BoolArray, FloatArray, IntArray
 __all__ = [
     "face_cross", "face_areas", "face_normals", "vertex_areas", "vertex_normals", "surface_area",
     "edges", "EdgeCounts", "edge_counts", "euler_characteristic", "degenerate_faces",
-    "vertex_adjacency", "components", "mean_edge_length",
+    "vertex_adjacency", "components", "mean_edge_length", "referenced",
 ]
+
+
+def referenced(n_vertices: int, faces: IntArray) -> BoolArray:
+    """(n,) bool: vertices used by at least one face (bincount, faster than np.unique)."""
+    f = np.asarray(faces, dtype=np.int64)
+    return np.bincount(f.ravel(), minlength=n_vertices)[:n_vertices] > 0
 
 
 def face_cross(vertices: FloatArray, faces: IntArray) -> FloatArray:
@@ -164,14 +170,17 @@ def mean_edge_length(vertices: FloatArray, faces: IntArray) -> float:
     return float(np.linalg.norm(v[he[:, 0]] - v[he[:, 1]], axis=1).mean())
 
 
-def vertex_adjacency(vertices: FloatArray, faces: IntArray, *, weighted: bool = True) -> sparse.csr_matrix:
+def vertex_adjacency(vertices: FloatArray, faces: IntArray, *, weighted: bool = True,
+                     unique_edges: IntArray | None = None) -> sparse.csr_matrix:
     """(n, n) symmetric sparse edge graph; weights are edge lengths (m) or 1.
+
+    ``unique_edges`` (e, 2), if given, is ``edge_counts(faces).unique`` computed before.
 
     Zero-length edges get a weight of 1e-12 of the mean edge length so that
     sparse storage does not drop them (which would cut the graph).
     """
     n = len(vertices)
-    e = edge_counts(faces).unique
+    e = edge_counts(faces).unique if unique_edges is None else unique_edges
     if weighted:
         v = np.asarray(vertices, dtype=np.float64)
         w = np.linalg.norm(v[e[:, 0]] - v[e[:, 1]], axis=1)
@@ -184,12 +193,14 @@ def vertex_adjacency(vertices: FloatArray, faces: IntArray, *, weighted: bool = 
     return g.tocsr()
 
 
-def components(n_vertices: int, faces: IntArray) -> tuple[int, IntArray]:
+def components(n_vertices: int, faces: IntArray, *,
+               unique_edges: IntArray | None = None) -> tuple[int, IntArray]:
     """Connected components over shared edges: (count, (n,) int64 label per vertex).
 
-    Unreferenced vertices are components of their own.
+    Unreferenced vertices are components of their own. ``unique_edges`` as in
+    :func:`vertex_adjacency`.
     """
-    e = edge_counts(faces).unique
+    e = edge_counts(faces).unique if unique_edges is None else unique_edges
     g = sparse.coo_matrix((np.ones(len(e)), (e[:, 0], e[:, 1])), shape=(n_vertices, n_vertices))
     count, labels = csgraph.connected_components(g, directed=False)
     return int(count), labels.astype(np.int64)

@@ -16,11 +16,12 @@ All lengths metres, areas m^2, angles radians.
 from __future__ import annotations
 
 import numpy as np
+from scipy import sparse
 from scipy.sparse import csgraph
 from scipy.spatial import cKDTree
 
 from .._typing import FloatArray, IntArray
-from .meshstats import vertex_adjacency, vertex_areas, vertex_normals
+from .meshstats import referenced, vertex_adjacency, vertex_areas, vertex_normals
 
 __all__ = ["decimation_seeds", "assign_along_surface", "recentre_seeds", "patch_statistics",
            "count_for_spacing"]
@@ -58,7 +59,7 @@ def decimation_seeds(vertices: FloatArray, faces: IntArray, n_target: int) -> In
 
     v = np.asarray(vertices, dtype=np.float64)
     f = np.asarray(faces, dtype=np.int64)
-    used = np.unique(f)
+    used = np.flatnonzero(referenced(len(v), f))
     if n_target >= len(used):
         return used
     n_faces_target = max(4, int(round(len(f) * n_target / len(used))))
@@ -74,7 +75,8 @@ def decimation_seeds(vertices: FloatArray, faces: IntArray, n_target: int) -> In
     return seeds.astype(np.int64)
 
 
-def assign_along_surface(vertices: FloatArray, faces: IntArray, seeds: IntArray) -> tuple[IntArray, FloatArray]:
+def assign_along_surface(vertices: FloatArray, faces: IntArray, seeds: IntArray, *,
+                         graph: sparse.spmatrix | None = None) -> tuple[IntArray, FloatArray]:
     """Give each vertex to the seed nearest along the mesh's edges.
 
     Parameters
@@ -83,6 +85,8 @@ def assign_along_surface(vertices: FloatArray, faces: IntArray, seeds: IntArray)
     faces : (k, 3) int64
     seeds : (m,) int64
         Distinct vertex indices.
+    graph : sparse (n, n), optional
+        ``vertex_adjacency(vertices, faces)`` if already built (reused across Lloyd steps).
 
     Returns
     -------
@@ -96,7 +100,8 @@ def assign_along_surface(vertices: FloatArray, faces: IntArray, seeds: IntArray)
     n = len(vertices)
     if len(s) == 0:
         return np.full(n, -1, np.int64), np.full(n, np.inf)
-    graph = vertex_adjacency(vertices, faces)
+    if graph is None:
+        graph = vertex_adjacency(vertices, faces)
     dist, _, source = csgraph.dijkstra(graph, directed=False, indices=s, min_only=True, return_predecessors=True)
     lookup = np.full(n, -1, np.int64)
     lookup[s] = np.arange(len(s))
