@@ -22,8 +22,9 @@ def run(surface: Surface, must_be_closed: bool = True, self_intersection: bool =
     ----------
     surface : Surface
     must_be_closed : bool
-        True for head-model layers (open/non-manifold/inverted/self-crossing are
-        ``fail``); False for a cortex (``warn``).
+        True: open/non-manifold/inverted/self-crossing are ``fail`` (head-model
+        layers need closed surfaces). Cortex surfaces (role ``cortex*``) are
+        always checked as if False (``warn``): patches do not need a closed sheet.
     self_intersection : bool
         Search for self-crossing triangles (pymeshfix; ~0.2 s per 20k faces).
 
@@ -34,11 +35,12 @@ def run(surface: Surface, must_be_closed: bool = True, self_intersection: bool =
         and the masks ``degenerate`` / ``self_intersecting`` (k,) as arrays.
     """
     name = surface.role if surface.role != "unknown" else (surface.provenance.file or "surface")
+    closed = must_be_closed and not surface.role.startswith("cortex")
     report = inspect_mesh(surface.vertices, surface.faces, self_intersection=self_intersection)
     arrays = {"degenerate": report.degenerate}
     if report.self_intersecting is not None:
         arrays["self_intersecting"] = report.self_intersecting
-    return CheckReport(findings=tuple(mesh_findings(report, name=name, must_be_closed=must_be_closed,
+    return CheckReport(findings=tuple(mesh_findings(report, name=name, must_be_closed=closed,
                                                     source="check 'mesh'")),
                        metrics=report.figures(), arrays=arrays)
 

@@ -104,7 +104,10 @@ def make(surfaces: Sequence[Surface], *, inner_skull: Surface | None = None, cou
     spacing_mm : float
         If > 0, the mean centre spacing (mm) instead of ``count``.
     exclude : bool
-        Remove patches outside or too close to the inner skull (always reported).
+        Remove patches outside or too close to the inner skull and report them
+        here (``warn`` / ``info``). When false, nothing is removed and the
+        ``patches`` check reports them (``fail`` / ``warn``), as the pipeline and
+        the ``patches`` command run it after the maker.
     min_distance_mm : float
         Closer to the inner skull than this is too close (default 5 mm, common practice).
     islands : {'keep-largest', 'fail'}
@@ -184,12 +187,11 @@ def make(surfaces: Sequence[Surface], *, inner_skull: Surface | None = None, cou
                                         "without a patch centre; they were given to no patch",
                                 values={"unreferenced": n_unref, "unreached": n_unreached}))
     remove = np.zeros(len(centres), bool)
-    if inner_skull is not None:
+    if inner_skull is not None and exclude:
+        # removed patches are reported here; kept ones are left to the 'patches' check (no double report)
         inside, dist = surface_clearance(centres, inner_skull.vertices, inner_skull.faces)
-        findings += clearance_findings(inside, dist, min_distance_mm=min_distance_mm, excluded=exclude,
-                                       source=SOURCE)
-        if exclude:
-            remove = ~inside | (dist * 1e3 < min_distance_mm)
+        remove = ~inside | (dist * 1e3 < min_distance_mm)
+        findings += clearance_findings(inside, dist, min_distance_mm=min_distance_mm, excluded=True, source=SOURCE)
     keep_p = ~remove
     newid = np.where(keep_p, np.cumsum(keep_p) - 1, -1)
     vertex_patch = np.where(vertex_patch >= 0, newid[np.maximum(vertex_patch, 0)], -1)

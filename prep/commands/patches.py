@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 
 from ..atomic import write_bytes_atomic
+from ..checks import run_checks
 from ..console import exit_status, format_findings
 from ..errors import UsageError
 from ..geometry.meshcheck import repair_surface
@@ -168,6 +169,10 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
     if not isinstance(patches, Patches):
         raise UsageError(f"patch maker '{desc.name}' returned {type(patches).__name__}, not Patches")
     findings += list(patches.findings)
+    checked = run_checks(reg, "patches", patches=patches, inner_skull=skull,
+                         options={"min_distance_mm": options.get("min_distance_mm")}
+                         if "min_distance_mm" in options else None)
+    findings += list(checked.findings)
     meta = {"format": FORMAT, "frame": patches.frame, "method": desc.name, "options": options,
             "units": {"positions": "m", "areas": "m^2", "spread": "rad"},
             "surfaces": [{"file": s.provenance.file, "sha256": s.provenance.sha256, "role": s.role,

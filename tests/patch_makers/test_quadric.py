@@ -13,7 +13,7 @@ from prep import make_registry
 from prep.errors import UsageError
 from prep.geometry.meshstats import surface_area
 from prep.model import Surface
-from prep_plugins import patch_quadric
+from prep_plugins import check_patches, patch_quadric
 
 SEMI_AXES = (0.07, 0.05, 0.04)  # m, an invented hemisphere-sized ellipsoid
 
@@ -191,7 +191,9 @@ def test_inner_skull_exclusion(reg) -> None:
     c = Surface(vertices=cortex.vertices + [0.012, 0, 0], faces=cortex.faces, role="cortex")  # pokes out at +x
     k = Surface(vertices=skull.vertices, faces=skull.faces, role="inner_skull")
     kept = _make(reg, [c], inner_skull=k, count=400, exclude=False)
-    codes = {x.code: x for x in kept.findings}
+    assert not {x.code for x in kept.findings} & {"patches.outside", "patches.too-close"}  # left to the check
+    check = make_registry(entry_points=False, plugins=[check_patches]).get("check", "patches")
+    codes = {x.code: x for x in check.run(patches=kept, inner_skull=k).findings}
     assert codes["patches.outside"].severity == "fail" and codes["patches.too-close"].severity == "warn"
     removed = _make(reg, [c], inner_skull=k, count=400)
     codes = {x.code: x for x in removed.findings}
