@@ -65,3 +65,28 @@ def sphere_leadfield(n_sensors: int = 64, n_sources: int = 300, radius: float = 
     lf = frank_potential(el, src, nrm, radius)
     lf = lf - (lf.mean(axis=0) if reference == "average" else lf[int(reference)])
     return lf, el, src, nrm
+
+
+def write_sphere_bundle(path, n_sensors: int = 32, n_sources: int = 150, radius: float = 0.09, seed: int = 0,
+                        reference: str | int = "average", leadfield: np.ndarray | None = None):
+    """Write a small bundle around a homogeneous-sphere lead field; returns its path.
+
+    ``leadfield`` replaces the computed matrix (e.g. to plant a fault).
+    """
+    from prep import VolumeConductor
+    from prep.bundle import write_bundle
+
+    lf, el, src, nrm = sphere_leadfield(n_sensors, n_sources, radius, seed, reference)
+    if leadfield is not None:
+        lf = leadfield
+    labels = [f"E{i + 1}" for i in range(n_sensors)]
+    conductor = VolumeConductor(kind="spheres", conductivities=[0.33], centre=[0.0, 0.0, 0.0], radii=[radius])
+    ref = "average" if reference == "average" else labels[int(reference)]
+    manifest = {"kit": {"name": "headprep", "version": "test"}, "frame": "anatomy",
+                "sensors": {"labels": labels}, "findings": [], "inputs": [], "plugins": [], "parameters": {},
+                "forward": {"solver": "spheres", "reference": ref, "params": {}},
+                "head_model": conductor.describe()}
+    arrays = {"leadfield": lf, "sensor_positions": el, "source_positions": src, "source_normals": nrm,
+              "source_areas": np.full(n_sources, 1e-5), "source_spread": np.zeros(n_sources),
+              "source_hemisphere": (src[:, 0] > 0).astype(np.int8)}
+    return write_bundle(path, manifest, arrays)
