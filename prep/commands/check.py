@@ -45,6 +45,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         "the minimum-norm resolution (default 3)")
     parser.add_argument("--out", metavar="DIR", help="passport directory (default <input>-passport)")
     parser.add_argument("--force", action="store_true", help="replace an existing passport directory")
+    parser.add_argument("--no-png", action="store_true", help="skip the pictures (faster in batch runs)")
     parser.add_argument("--json", action="store_true", help="print one JSON document on stdout")
 
 
@@ -129,7 +130,7 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
         (tmp / "arrays").mkdir()
         for name, arr in passport.arrays.items():
             np.save(tmp / "arrays" / f"{name}.npy", np.ascontiguousarray(arr), allow_pickle=False)
-        pngs = passport_pngs(passport, tmp)
+        pngs = [] if args.no_png else passport_pngs(passport, tmp)
         doc["files"] = ["passport.json", *(f"arrays/{k}.npy" for k in passport.arrays), *(p.name for p in pngs)]
         (tmp / "passport.json").write_text(json.dumps(doc, indent=2, allow_nan=False) + "\n", encoding="utf-8")
     ctx.emit(doc, lambda: _human(passport, out))

@@ -33,7 +33,7 @@ def test_check_npy_files_with_single_reference_fails(tmp_path, capsys):
     for name, arr in (("L", lf), ("S", el), ("P", src), ("N", nrm)):
         np.save(tmp_path / f"{name}.npy", arr)
     argv = ["check", "--leadfield", str(tmp_path / "L.npy"), "--sensor-positions", str(tmp_path / "S.npy"),
-            "--source-positions", str(tmp_path / "P.npy"), "--normals", str(tmp_path / "N.npy")]
+            "--source-positions", str(tmp_path / "P.npy"), "--no-png", "--normals", str(tmp_path / "N.npy")]
     assert main([*argv, "--out", str(tmp_path / "a")]) == 1
     assert "leadfield.reference" in capsys.readouterr().out
     assert main([*argv, "--reference", "E3", "--out", str(tmp_path / "b")]) == 0
