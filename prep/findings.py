@@ -33,6 +33,7 @@ CODES: dict[str, str] = {
     "layers.intersect": "two head-model layers cross",
     "layers.too-close": "two head-model layers are closer than the minimum gap",
     "layers.order": "head-model layers are not nested in the stated order",
+    "layers.derived": "skull layers were derived from the scalp (no skull meshes given)",
     # patches
     "patches.outside": "source patches lie outside the inner skull",
     "patches.too-close": "source patches lie too close to the inner skull",
