@@ -55,19 +55,29 @@ class Passport:
                 "arrays": {k: {"shape": list(v.shape), "dtype": v.dtype.name} for k, v in self.arrays.items()}}
 
 
-def _split_options(checks: list[Any], options: Mapping[str, Any] | None) -> dict[str, dict[str, Any]]:
-    """Per-check option dicts from ``{check: {...}}`` entries and shared ``{key: value}`` ones."""
+def _split_options(registry: Registry, checks: list[Any],
+                   options: Mapping[str, Any] | None) -> dict[str, dict[str, Any]]:
+    """Per-check option dicts from a flat namespace (the recipe's ``[checks]``) and per-check tables.
+
+    A flat key goes to every lead-field check that declares it; a key that only
+    another kind of check declares (placement, meshes...) is left to it. A
+    table named after a lead-field check sets that check alone.
+    """
     per: dict[str, dict[str, Any]] = {c.name: {} for c in checks}
-    names = set(per)
+    everything = registry.descriptors("check")
+    other_names = {c.name for c in everything} - set(per)
+    other_keys = {k for c in everything if c.name in other_names for k in c.defaults}
     for key, value in (options or {}).items():
-        if key in names:
+        if key in per:
             if not isinstance(value, Mapping):
                 raise UsageError(f"passport options: '{key}' must be a table of options for that check")
             per[key].update(value)
             continue
         takers = [c.name for c in checks if key in c.defaults]
         if not takers:
-            known = sorted({k for c in checks for k in c.defaults} | names)
+            if key in other_names or key in other_keys:
+                continue
+            known = sorted({k for c in checks for k in c.defaults} | set(per))
             raise UsageError(f"passport options: unknown option '{key}' (known: {', '.join(known)})")
         for name in takers:
             per[name].setdefault(key, value)
@@ -85,9 +95,11 @@ def run_passport(registry: Registry, leadfield: LeadField, sensor_positions: np.
         Fixed (n_sensors, n_sources) or free (n_sensors, n_sources, 3), V/(A*m).
     sensor_positions : (n_sensors, 3) float64, metres, in ``leadfield.frame``
     options : mapping, optional
-        ``{check_name: {option: value}}`` for one check, and ``{option: value}``
-        for every check that accepts that option (``{"snr": 5.0}``).
-        Unknown names are a UsageError.
+        A flat namespace like the recipe's ``[checks]``: ``{option: value}``
+        goes to every lead-field check that declares the option
+        (``{"snr": 5.0}``); ``{check_name: {option: value}}`` sets one check.
+        Keys only other kinds of check declare are ignored; unknown keys are a
+        UsageError.
 
     Returns
     -------
@@ -97,7 +109,7 @@ def run_passport(registry: Registry, leadfield: LeadField, sensor_positions: np.
     if pos.shape != (leadfield.n_sensors, 3):
         raise UsageError(f"sensor positions are {pos.shape}, the lead field has {leadfield.n_sensors} rows")
     checks = [c for c in registry.descriptors("check") if c.target == "leadfield"]
-    per = _split_options(checks, options)
+    per = _split_options(registry, checks, options)
     findings: list[Finding] = []
     metrics: dict[str, Any] = {}
     arrays: dict[str, np.ndarray] = {}

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from frank_sphere import fibonacci_sphere, frank_potential, series_potential, sphere_leadfield
+from inverse_solvers.frank_sphere import fibonacci_sphere, frank_potential, series_potential, sphere_leadfield
 
 from prep import ForwardModel, InverseProblem, LeadField, VolumeConductor, make_registry
 from prep_plugins import inverse_dipole, inverse_minnorm

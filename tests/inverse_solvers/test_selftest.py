@@ -5,7 +5,7 @@ import json
 
 import numpy as np
 import pytest
-from frank_sphere import write_sphere_bundle
+from inverse_solvers.frank_sphere import write_sphere_bundle
 
 from prep import make_registry
 from prep.bundle import load_bundle
