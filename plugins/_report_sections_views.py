@@ -6,8 +6,9 @@ camera moves and each view is captured, which costs one render per view.
 """
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -99,17 +100,14 @@ def electrode_views(assets: Assets, scalp: Mesh | None, el: Electrodes, limit_mm
         f"{el.signed_distance.max() * 1e3:.1f} mm)")
     named = ", ".join(el.labels[i] for i in flagged)
     flag_text = f"; flagged and labelled: {named}" if flagged else "; no electrode is flagged"
-    out = []
+    what = "Scalp" if scalp is not None else "Head"
     try:
         _start(p)
-        for view in views:
-            _look(p, centre, radius, view)
-            alt = (f"{'Scalp' if scalp is not None else 'Head'} seen from the {view} with {len(pts)} "
-                   f"{el.drawn_kind} electrode positions{dist}{flag_text}.")
-            out.append(assets.scene(p, alt, caption=f"{view} view"))
+        return _shots(assets, p, centre, radius, views,
+                      lambda v: f"{what} seen from the {v} with {len(pts)} {el.drawn_kind} electrode "
+                                f"positions{dist}{flag_text}.")
     finally:
         p.close()
-    return out
 
 
 @dataclass(frozen=True)
@@ -129,11 +127,23 @@ def _bar(title: str) -> dict:
             "title_font_size": 14, "label_font_size": 13}
 
 
-def cortex_views(assets: Assets, cortex: Mesh, colourings: Sequence[Colouring],
-                 views: Sequence[str] = ("left", "top", "right")) -> list[list[str]]:
-    """Views of the cortex for each colouring (one plotter, repainted), grey where no patch."""
-    surf = _polydata(cortex)
-    centre, radius = np.asarray(surf.center), float(surf.length) / 2.0
+def _shots(assets: Assets, p, centre: np.ndarray, radius: float, views: Sequence[str],  # noqa: ANN001
+           describe: Callable[[str], str]) -> list[str]:
+    """Capture each named view of plotter ``p``; ``describe(view)`` gives its alt text."""
+    out = []
+    for view in views:
+        _look(p, centre, radius, view)
+        out.append(assets.scene(p, describe(view), caption=f"{view} view"))
+    return out
+
+
+def painted_views(assets: Assets, dataset, colourings: Sequence[Colouring], *, subject: str,  # noqa: ANN001
+                  views: Sequence[str] = ("left", "top", "right"), **mesh_kw: Any) -> list[list[str]]:
+    """Views of a pyvista dataset (mm) for each colouring, in one plotter repainted per colouring.
+
+    ``subject`` names what is shown in the alt text (``"Cortex"``, ``"Patch centres"``).
+    """
+    centre, radius = np.asarray(dataset.center), float(dataset.length) / 2.0 or 50.0
     p = render.plotter(window_size=VIEW_SIZE)
     out: list[list[str]] = []
     try:
@@ -142,19 +152,16 @@ def cortex_views(assets: Assets, cortex: Mesh, colourings: Sequence[Colouring],
             finite = c.values[np.isfinite(c.values)]
             lo, hi = np.percentile(finite, [2, 98]) if finite.size else (0.0, 1.0)
             hi = hi if hi > lo else lo + 1.0
-            painted = surf.copy(deep=False)
+            painted = dataset.copy(deep=False)
             painted[c.title] = c.values
             actor = p.add_mesh(painted, scalars=c.title, cmap=c.cmap, clim=(float(lo), float(hi)),
-                               nan_color=CORTEX_NAN, smooth_shading=True, show_scalar_bar=True,
-                               scalar_bar_args=_bar(c.title))
+                               nan_color=CORTEX_NAN, show_scalar_bar=True, scalar_bar_args=_bar(c.title),
+                               **mesh_kw)
             rng = f"{finite.min():.3g} to {finite.max():.3g} {c.unit}" if finite.size else "no values"
-            figs = []
-            for view in views:
-                _look(p, centre, radius, view)
-                alt = (f"Cortex seen from the {view}, coloured by {c.what} ({rng}); grey where a vertex "
-                       f"belongs to no patch.")
-                figs.append(assets.scene(p, alt, caption=f"{view} view"))
-            out.append(figs)
+            grey = "; grey where a vertex belongs to no patch" if np.isnan(c.values).any() else ""
+            out.append(_shots(assets, p, centre, radius, views,
+                              lambda v, c=c, rng=rng, grey=grey:
+                              f"{subject} seen from the {v}, coloured by {c.what} ({rng}){grey}."))
             p.remove_actor(actor)
             p.remove_scalar_bar(c.title)
     finally:
@@ -162,27 +169,14 @@ def cortex_views(assets: Assets, cortex: Mesh, colourings: Sequence[Colouring],
     return out
 
 
-def source_cloud_views(assets: Assets, positions: np.ndarray, values: np.ndarray, *, title: str,
-                       cmap: str, what: str, unit: str, views: Sequence[str] = ("left", "top")) -> list[str]:
-    """Without a cortex mesh: the patch centres as dots coloured by ``values``."""
+def cortex_views(assets: Assets, cortex: Mesh, colourings: Sequence[Colouring]) -> list[list[str]]:
+    """The cortex painted per vertex by each colouring (NaN where no patch: grey)."""
+    return painted_views(assets, _polydata(cortex), colourings, subject="Cortex", smooth_shading=True)
+
+
+def source_cloud_views(assets: Assets, positions: np.ndarray, colourings: Sequence[Colouring]) -> list[list[str]]:
+    """Without a cortex mesh: the patch centres (m) as dots painted by each colouring."""
     import pyvista as pv
 
-    pts = positions * 1e3
-    cloud = pv.PolyData(pts)
-    cloud[title] = values
-    p = render.plotter(window_size=VIEW_SIZE)
-    p.add_mesh(cloud, scalars=title, cmap=cmap, render_points_as_spheres=True, point_size=7,
-               scalar_bar_args=_bar(title))
-    centre = pts.mean(axis=0)
-    radius = float(np.ptp(pts, axis=0).max()) / 2.0 or 50.0
-    out = []
-    try:
-        _start(p)
-        for view in views:
-            _look(p, centre, radius, view)
-            alt = (f"Patch centres seen from the {view}, coloured by {what} "
-                   f"({np.nanmin(values):.3g} to {np.nanmax(values):.3g} {unit}).")
-            out.append(assets.scene(p, alt, caption=f"{view} view"))
-    finally:
-        p.close()
-    return out
+    return painted_views(assets, pv.PolyData(np.asarray(positions) * 1e3), colourings, subject="Patch centres",
+                         views=("left", "top"), render_points_as_spheres=True, point_size=7)

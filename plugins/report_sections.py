@@ -155,9 +155,8 @@ def render_cortex(bundle: Bundle, assets: Assets) -> str:
             paints.append(Colouring(per_vertex, title, cmap, what, unit))
         galleries = cortex_views(assets, data.Mesh("cortex", cv, cf), paints)
     else:
-        galleries = [source_cloud_views(assets, np.asarray(a["source_positions"], float), values, title=title,
-                                        cmap=cmap, what=what, unit=unit)
-                     for values, title, cmap, what, unit in quantities]
+        galleries = source_cloud_views(assets, np.asarray(a["source_positions"], float),
+                                       [Colouring(*q) for q in quantities])
     for (_, _, _, what, unit), figs in zip(quantities, galleries):
         parts.append(f"<h3>{esc(what.capitalize())} ({esc(unit)})</h3>")
         parts.append(_gallery(figs))

@@ -272,6 +272,9 @@ def write_report(bundle: Bundle, registry: Any, out: str | os.PathLike[str], *, 
         raise UsageError(f"{path}: already exists; use --force to replace it")
     text = build_report(bundle, registry)
     write_text_atomic(path, text)
+    umask = os.umask(0o022)  # read back the process umask (there is no getter) and restore it
+    os.umask(umask)
+    os.chmod(path, 0o666 & ~umask)  # a page to share: the atomic temp file was created private (0600)
     return path
 
 

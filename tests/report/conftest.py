@@ -63,7 +63,7 @@ def _cortex(rng: np.random.Generator, n_patches: int) -> dict[str, np.ndarray]:
 
 def make_synthetic_bundle(path: Path, *, seed: int = 7, n_sensors: int = 32, n_patches: int = 60,
                           layers: bool = True, cortex: bool = True, passport: bool = True,
-                          placement: bool = True, spheres: bool = False,
+                          placement: bool = True, spheres: bool = False, scalp: bool = True,
                           findings: list[Finding] | None = None) -> Path:
     """Write a synthetic bundle at ``path`` and return it; switches drop optional parts."""
     rng = np.random.default_rng(seed)
@@ -79,7 +79,8 @@ def make_synthetic_bundle(path: Path, *, seed: int = 7, n_sensors: int = 32, n_p
     dist[labels.index(LIFTED)] = 0.014
     dist[labels.index(SUNK)] = -0.004
     arrays["sensor_positions"] = pos
-    arrays["scalp_vertices"], arrays["scalp_faces"] = sv, sf
+    if scalp:
+        arrays["scalp_vertices"], arrays["scalp_faces"] = sv, sf
     if placement:
         arrays["sensor_digitized"] = pos + normal * dist[:, None]
         arrays["placement_signed_distance"] = dist
@@ -152,3 +153,38 @@ def synthetic_bundle(tmp_path: Path) -> Callable[..., Path]:
     def make(name: str = "bundle", **kw: Any) -> Path:
         return make_synthetic_bundle(tmp_path / name, **kw)
     return make
+
+
+#: the sparse bundle: only what every bundle must have (and patch figures)
+SPARSE = {"layers": False, "cortex": False, "passport": False, "placement": False, "scalp": False}
+
+
+def _page(bundle: Path) -> Path:
+    from prep.bundle import load_bundle
+    from prep.registry import make_registry
+    from prep.report import write_report
+
+    return write_report(load_bundle(bundle), make_registry(), bundle.parent / f"{bundle.name}.html")
+
+
+@pytest.fixture(scope="session")
+def report_bundle(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The full synthetic bundle (one fail, one warn, one info finding), built once per session."""
+    return make_synthetic_bundle(tmp_path_factory.mktemp("report") / "full")
+
+
+@pytest.fixture(scope="session")
+def report_page(report_bundle: Path) -> Path:
+    """The report of :func:`report_bundle`, written once per session."""
+    return _page(report_bundle)
+
+
+@pytest.fixture(scope="session")
+def sparse_bundle(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """A bundle with none of the optional parts but the patch figures."""
+    return make_synthetic_bundle(tmp_path_factory.mktemp("report") / "sparse", **SPARSE)
+
+
+@pytest.fixture(scope="session")
+def sparse_page(sparse_bundle: Path) -> Path:
+    return _page(sparse_bundle)
