@@ -225,3 +225,10 @@ def test_weights_of_closed_mesh_sum_to_solid_angle() -> None:
     np.testing.assert_allclose(w.sum(axis=1), [4 * np.pi, 4 * np.pi, 0.0], atol=1e-10)
     np.testing.assert_allclose(op.weights(np.vstack([pts, v[:50] * 0.09]), backend="auto"),
                                op.weights(np.vstack([pts, v[:50] * 0.09]), backend="numpy"), atol=1e-10)
+
+
+def test_electrode_rows_only_equal_cached_scalp_solution(model_162) -> None:
+    # cache=False solves only for the electrodes' rows; same transfer matrix to rounding
+    direct = forward_bem.build(model_162.conductor, model_162.sensor_labels, _electrodes(), cache=False)
+    np.testing.assert_allclose(direct.arrays["transfer"], model_162.arrays["transfer"],
+                               atol=1e-9 * np.abs(model_162.arrays["transfer"]).max())
