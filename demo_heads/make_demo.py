@@ -22,6 +22,10 @@ same on every run. The anatomy frame is MRI-like (millimetres, +x right,
   jittered by digitizer noise and moved into a device frame by a known rigid
   transform (kept in ``truth.json``).
 
+Every surface is ``centre + r(u) u`` over a geodesic sphere with r > 0, so each
+flat triangle projects radially onto its own spherical triangle: the surfaces
+are closed, outward and cannot cross themselves.
+
 Before writing, the script checks the geometry with trimesh (watertight,
 outward, nested with the stated gaps, cortex inside the inner skull) and stops
 with a message naming the failed check.
@@ -182,9 +186,11 @@ class HeadShape:
         return radius - depth / cos
 
     def outer_depth(self, u: np.ndarray) -> np.ndarray:
+        """Normal depth (mm) of the outer skull below the scalp along ``u``."""
         return OUTER_SKULL_DEPTH[0] + OUTER_SKULL_DEPTH[1] * (u @ self.outer_dir)
 
     def inner_depth(self, u: np.ndarray) -> np.ndarray:
+        """Normal depth (mm) of the inner skull below the scalp along ``u``."""
         return INNER_SKULL_DEPTH[0] + INNER_SKULL_DEPTH[1] * (u @ self.inner_dir)
 
 
@@ -330,6 +336,8 @@ def _check_closed(name: str, mesh: trimesh.Trimesh) -> None:
         raise DemoCheckError(f"{name}: not watertight")
     if not mesh.is_winding_consistent:
         raise DemoCheckError(f"{name}: inconsistent winding")
+    if mesh.euler_number != 2:
+        raise DemoCheckError(f"{name}: not a sphere-like surface (Euler number {mesh.euler_number})")
     if mesh.volume <= 0:
         raise DemoCheckError(f"{name}: negative volume (faces point inward)")
 
