@@ -70,9 +70,13 @@ FREQ = {"scalp": 28, "skull": 16, "cortex": 56}
 OUTER_SKULL_DEPTH = (6.0, 0.5)
 INNER_SKULL_DEPTH = (11.5, 0.7)
 #: gyral crowns stay this far (radially, about the skull's normal) inside the inner skull (mm)
-CORTEX_MARGIN = 5.0
+CORTEX_MARGIN = 6.0
 MIDLINE_GAP = 5.0          # mm between the two hemispheres' envelopes
 CORTEX_FLOOR = -40.0       # mm below HEAD_CENTRE: lowest cortical envelope
+#: the envelope also stays inside this ball (centre offset from HEAD_CENTRE, radius, mm): wider
+#: CSF at the frontal and occipital poles keeps every source inside the brain sphere of a
+#: default concentric-spheres model fitted to the cap (0.87 of its radius, about 72 mm here)
+CORTEX_BALL = (np.array([0.0, 1.5, 4.0]), 68.0)
 SULCUS_DEPTH = (12.5, 2.5)  # mm, mean and half-range
 SULCUS_WIDTH = 1.7         # mm, Gaussian sigma of the sulcal profile across its line
 
@@ -243,7 +247,10 @@ def hemisphere(side: int, head: HeadShape, rng: np.random.Generator) -> trimesh.
         t_mid = np.where(toward_mid > 0, (30.0 - MIDLINE_GAP / 2) / toward_mid, np.inf)
         down = -dirs[:, 2]
         t_floor = np.where(down > 0, (10.0 - CORTEX_FLOOR) / down, np.inf)
-    t_env = _softmin(np.stack([t_skull, np.minimum(t_mid, 1e3), np.minimum(t_floor, 1e3)]), 3.0)
+    rel = centre - HEAD_CENTRE - CORTEX_BALL[0]
+    b = dirs @ rel
+    t_ball = -b + np.sqrt(b * b - (rel @ rel - CORTEX_BALL[1] ** 2))
+    t_env = _softmin(np.stack([t_skull, t_ball, np.minimum(t_mid, 1e3), np.minimum(t_floor, 1e3)]), 3.0)
 
     # sulci: narrow grooves along the zero set of a sum of plane waves
     p = centre + dirs * t_env[:, None]
