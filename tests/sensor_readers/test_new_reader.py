@@ -8,6 +8,8 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
+
 from prep import make_registry
 from prep.cli import main
 from prep.testing import assert_reader_conforms
@@ -43,6 +45,7 @@ def test_scaffolded_reader_passes_the_conformance_suite(tmp_path, capsys):
     assert s.provenance.unit == "cm" and len(s) == 5
 
 
+@pytest.mark.slow
 def test_scaffolded_package_runs_its_own_test(tmp_path, capsys):
     pkg = _scaffold(tmp_path, capsys)
     env = {**os.environ, "PYTHONPATH": str(pkg)}
