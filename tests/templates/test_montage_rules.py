@@ -89,7 +89,7 @@ def test_left_right_mirror(sphere_1010):
 def test_inion_estimated_with_info_finding(sphere):
     s = montage_rules.place(*sphere, system="10-20")
     np.testing.assert_allclose(s.fiducials["inion"], [0, -R, 0], atol=1e-4)
-    assert [f.code for f in s.findings] == ["input.fiducial-missing"] and s.findings[0].severity == "info"
+    assert [f.code for f in s.findings] == ["input.landmark-estimated"] and s.findings[0].severity == "info"
 
 
 def test_missing_fiducial_and_unknown_system(sphere):
