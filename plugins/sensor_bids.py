@@ -240,5 +240,5 @@ def headprep_register_sensor_readers() -> list[SensorReader]:
 
 @hookimpl
 def headprep_register_sensor_writers() -> list[SensorWriter]:
-    return [SensorWriter(name="bids", suffixes=(SUFFIX,), write=write_bids,
+    return [SensorWriter(name="bids", suffixes=(SUFFIX, SUFFIX.lstrip("_")), write=write_bids,
                          description="canonical BIDS electrodes.tsv + coordsystem.json, metres")]
