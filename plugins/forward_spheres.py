@@ -129,6 +129,13 @@ def build(conductor: VolumeConductor, sensor_labels: Sequence[str], sensor_posit
         ``evaluate(positions (m,3), normals (m,3) or None)`` gives (n, m) or
         (n, m, 3) V/(A*m) against ``reference``.
     """
+    return _build(conductor, sensor_labels, sensor_positions, reference, options, None)
+
+
+def _build(conductor: VolumeConductor, sensor_labels: Sequence[str], sensor_positions: np.ndarray,
+           reference: str, options: Mapping[str, Any], stored: Mapping[str, np.ndarray] | None,
+           ) -> ForwardModel:
+    """Common part of :func:`build` and :func:`restore`."""
     if conductor.kind != "spheres":
         raise UsageError(f"the '{NAME}' forward solver needs a concentric-spheres conductor, "
                          f"got kind '{conductor.kind}'")
@@ -139,19 +146,24 @@ def build(conductor: VolumeConductor, sensor_labels: Sequence[str], sensor_posit
     if not 0 < float(params["tolerance"]) < 1:
         raise UsageError(f"forward solver '{NAME}': tolerance must be in (0, 1), got {params['tolerance']}")
     labels = tuple(sensor_labels)
-    dirs, projected = _project(conductor, sensor_positions)
+    given = (stored or {}).get("directions")
+    if given is not None and np.shape(given) == np.shape(sensor_positions):
+        dirs = np.asarray(given, dtype=np.float64)           # restored: bit-identical to the original build
+        projected = np.asarray(sensor_positions, dtype=np.float64)
+    else:
+        dirs, projected = _project(conductor, sensor_positions)
     ref_row = _reference_row(labels, reference)
     return ForwardModel(solver=NAME, conductor=conductor, sensor_labels=labels, sensor_positions=projected,
                         evaluate=_make_evaluate(conductor, dirs, ref_row, params), reference=reference,
-                        params=params, arrays={}, frame=conductor.frame)
+                        params=params, arrays={"directions": dirs}, frame=conductor.frame)
 
 
 def restore(*, conductor: VolumeConductor, sensor_labels: Sequence[str], sensor_positions: np.ndarray,
             reference: str = "average", params: Mapping[str, Any] | None = None,
             arrays: Mapping[str, np.ndarray] | None = None) -> ForwardModel:
-    """Rebuild a model from what a bundle stored (the sphere model keeps no arrays)."""
+    """Rebuild a model from what a bundle stored (``arrays["directions"]``: unit electrode directions)."""
     opts = {k: v for k, v in dict(params or {}).items() if k in DEFAULTS}
-    return build(conductor, sensor_labels, sensor_positions, reference=reference, **opts)
+    return _build(conductor, sensor_labels, sensor_positions, reference, opts, arrays)
 
 
 @hookimpl
