@@ -28,7 +28,7 @@ NAME = "spheres"
 DEFAULTS: dict[str, Any] = {
     "tolerance": 1e-8,       # relative to the largest |V| of a source over the electrodes
     "workers": 0,            # threads; 0 = up to 4, bounded by the CPU count
-    "chunk_elements": 262144,  # electrodes x sources per block of work (bounds memory)
+    "chunk_elements": 65536,  # electrodes x sources per block of work (bounds memory)
 }
 
 
