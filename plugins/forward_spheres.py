@@ -26,7 +26,7 @@ from . import _forward_spheres_series as series
 
 NAME = "spheres"
 DEFAULTS: dict[str, Any] = {
-    "tolerance": 1e-8,       # relative to the largest |V| of a source over the electrodes
+    "tolerance": 1e-7,       # relative to the largest |V| of a source over the electrodes
     "workers": 0,            # threads; 0 = up to 4, bounded by the CPU count
     "chunk_elements": 65536,  # electrodes x sources per block of work (bounds memory)
 }
