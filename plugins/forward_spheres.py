@@ -86,9 +86,12 @@ def _make_evaluate(conductor: VolumeConductor, dirs: np.ndarray, ref_row: int | 
         order = np.argsort(b, kind="stable")
         blocks = [order[i:i + per_chunk] for i in range(0, m, per_chunk)]
 
+        flat = out.reshape(len(dirs), -1)          # a view: scatter single values, ~3x faster than (.., 3) rows
+
         def one(idx: np.ndarray) -> None:
-            out[:, idx] = series.chunk_potentials(dirs, src[idx], None if nrm is None else nrm[idx],
-                                                  weights, radius, tol)
+            block = series.chunk_potentials(dirs, src[idx], None if nrm is None else nrm[idx], weights, radius, tol)
+            cols = idx if nrm is not None else (3 * idx[:, None] + np.arange(3)).ravel()
+            flat[:, cols] = block.reshape(len(dirs), -1)
 
         if workers == 1 or len(blocks) == 1:
             for idx in blocks:
