@@ -228,3 +228,16 @@ def test_registry_build_and_bundle_state_round_trip():
     assert manifest["forward"]["solver"] == "spheres" and again.params["tolerance"] == 1e-9
     with pytest.raises(UsageError, match="unknown option"):
         build_forward(reg, cond, labels, _sensors(32), options={"order": 3})
+
+
+def test_threads_and_blocks_do_not_change_the_result():
+    rng = np.random.default_rng(9)
+    u = rng.normal(size=(300, 3))
+    pos = 0.08 * rng.uniform(0, 1, (300, 1)) * u / np.linalg.norm(u, axis=1)[:, None]
+    nrm = rng.normal(size=(300, 3))
+    one = _build(RAD3, SIG3, workers=1)
+    many = _build(RAD3, SIG3, workers=2, chunk_elements=64 * 16)      # 16 sources per block
+    for normals in (None, nrm):
+        a, b = one.evaluate(pos, normals), many.evaluate(pos, normals)
+        assert a.shape == b.shape
+        np.testing.assert_allclose(a, b, rtol=0, atol=1e-7 * np.abs(a).max())
