@@ -234,9 +234,8 @@ def remainder_sums(f: F64, t: F64, w: F64, budget: float) -> tuple[F64, F64]:
     r1 = np.zeros_like(tt)
     r2 = np.zeros_like(tt)
     for j, wj in enumerate(weights):
-        idx = flat + j
-        r1 += wj * g1[idx]
-        r2 += wj * g2[idx]
+        r1 += wj * np.take(g1[j:], flat)             # shifted views: no index arithmetic per node
+        r2 += wj * np.take(g2[j:], flat)
     return r1.T, r2.T
 
 
