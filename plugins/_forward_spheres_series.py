@@ -16,8 +16,10 @@ potential is (de Munck & Peters 1993, isotropic case of Zhang 1995)::
 sphere). ``D_n`` comes from a 2x2 transfer-matrix recursion across the
 interfaces (:func:`shell_weights`). For large ``n``,
 ``c_n -> c_inf + alpha / (2n+1) + O(n^-2)``; the two leading parts are summed in
-closed form (:func:`closed_form_part`) and only the remainder series is summed
-term by term until converged.
+closed form (:func:`closed_form_part`) and only the remainder series is summed,
+up to the degree where an a-priori bound of what is left falls below the
+tolerance (:func:`remainder_sums`: on a grid of angles by matrix products, then
+interpolated to the electrodes).
 """
 from __future__ import annotations
 

@@ -164,8 +164,9 @@ def test_linearity_in_the_moment():
     free = fm.evaluate(pos, None)
     q1, q2 = rng.normal(size=(5, 3)), rng.normal(size=(5, 3))
     v1, v2 = fm.evaluate(pos, q1), fm.evaluate(pos, q2)
-    np.testing.assert_allclose(fm.evaluate(pos, 2.5 * q1 - q2), 2.5 * v1 - v2, rtol=1e-10, atol=1e-12 * np.abs(v1).max())
-    np.testing.assert_allclose(v1, np.einsum("nmk,mk->nm", free, q1), rtol=1e-10, atol=1e-12 * np.abs(v1).max())
+    atol = 1e-12 * np.abs(v1).max()
+    np.testing.assert_allclose(fm.evaluate(pos, 2.5 * q1 - q2), 2.5 * v1 - v2, rtol=1e-10, atol=atol)
+    np.testing.assert_allclose(v1, np.einsum("nmk,mk->nm", free, q1), rtol=1e-10, atol=atol)
 
 
 def test_no_net_current_leaves_the_head():
