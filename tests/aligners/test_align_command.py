@@ -36,7 +36,7 @@ def test_align_writes_transform_sensors_and_picture(tmp_path: Path, capsys: pyte
                                              headshape=s.sensors.headshape * 1000,
                                              fiducials={k: v * 1000 for k, v in s.sensors.fiducials.items()}), s)
     out = tmp_path / "out"
-    assert main(_argv(files, "--out", str(out), "--json")) == 0
+    assert main(_argv(files, "--out", str(out), "--json", "--set", "n_boot=50", "--set", "off_scalp_warn_m=0.008")) == 0
     doc = json.loads(capsys.readouterr().out)
     t = doc["transform"]
     assert (t["from"], t["to"]) == ("device", "anatomy") and np.asarray(t["matrix"]).shape == (4, 4)
@@ -73,4 +73,7 @@ def test_too_few_points_exits_2_and_writes_nothing(tmp_path: Path, capsys: pytes
     out = tmp_path / "out"
     assert main(_argv(files, "--out", str(out))) == 2
     assert "input.too-few-points:" in capsys.readouterr().err
+    assert not out.exists()
+    assert main(_argv(files, "--out", str(out), "--set", "no_such_option=1")) == 2
+    assert "unknown check option 'no_such_option'" in capsys.readouterr().err
     assert not out.exists()
