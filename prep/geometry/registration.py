@@ -150,8 +150,10 @@ def point_to_plane_system(points: FloatArray, targets: FloatArray, normals: Floa
 def _solve_step(a: FloatArray, b: FloatArray, w: FloatArray, damping: float) -> FloatArray:
     ata = (a * w[:, None]).T @ a
     atb = (a * w[:, None]).T @ b
-    ata = ata + damping * np.trace(ata) / 6 * np.eye(6)
-    return np.linalg.solve(ata, atb)
+    tr = np.trace(ata)
+    if not tr > 0:  # every point rejected or weightless: stay where we are
+        return np.zeros(6)
+    return np.linalg.solve(ata + damping * tr / 6 * np.eye(6), atb)
 
 
 def _step_matrix(x: FloatArray) -> FloatArray:

@@ -206,3 +206,23 @@ def test_with_the_installed_rules_template(scalps: dict, shape: str) -> None:
                         s.scalp, s.anatomy_fiducials)
     swaps = {subj for code, subj in _codes(res, "fail") if code == "placement.swapped"}
     assert swaps == {frozenset({"Fp1", "O2"}), frozenset({"C3", "C1"})}
+
+
+@pytest.mark.parametrize("factor", [1000.0, 0.1])
+def test_wrong_units_end_in_a_misfit_not_a_crash(scalps: dict, factor: float) -> None:
+    s = subject("bumpy", 2, surface=scalps["bumpy"])
+    k = factor  # millimetres read as metres, or centimetres read as millimetres
+    bad = replace(s.sensors, positions=s.sensors.positions * k, headshape=s.sensors.headshape * k,
+                  fiducials={a: v * k for a, v in s.sensors.fiducials.items()})
+    res = place_sensors(_registry(template=False), bad, s.scalp, s.anatomy_fiducials)
+    assert ("placement.misfit", "fail") in {(f.code, f.severity) for f in res.findings}
+
+
+def test_non_finite_electrode_is_carried_not_checked(scalps: dict) -> None:
+    s = subject("bumpy", 2, surface=scalps["bumpy"])
+    pos = s.sensors.positions.copy()
+    pos[3] = np.nan
+    res = place_sensors(_registry(), replace(s.sensors, positions=pos), s.scalp, s.anatomy_fiducials)
+    row = res.report.metrics["placement"]["electrodes"][3]
+    assert row["signed_distance_m"] is None and row["projected_m"] is None
+    assert not _codes(res, "fail")
