@@ -72,6 +72,14 @@ def decimation_seeds(vertices: FloatArray, faces: IntArray, n_target: int) -> In
     tree = cKDTree(v[used])
     _, nearest = tree.query(pts, k=1)
     seeds = np.unique(used[nearest])
+    if len(seeds) > n_target and n_target < 8:
+        # decimation stops near a tetrahedron: thin very small targets by farthest-point sampling
+        chosen = [int(np.argmin(np.linalg.norm(v[seeds] - v[used].mean(axis=0), axis=1)))]
+        d = np.linalg.norm(v[seeds] - v[seeds[chosen[0]]], axis=1)
+        while len(chosen) < n_target:
+            chosen.append(int(np.argmax(d)))
+            d = np.minimum(d, np.linalg.norm(v[seeds] - v[seeds[chosen[-1]]], axis=1))
+        seeds = np.sort(seeds[chosen])
     return seeds.astype(np.int64)
 
 
