@@ -41,7 +41,8 @@ def _child(conn, meshes) -> None:  # noqa: ANN001
     from prep.model import Surface
     from prep_plugins import patch_quadric
 
-    surfaces = [Surface(vertices=v, faces=f, role=role) for (v, f), role in zip(meshes, ("cortex_left", "cortex_right"))]
+    roles = ("cortex_left", "cortex_right")
+    surfaces = [Surface(vertices=v, faces=f, role=role) for (v, f), role in zip(meshes, roles)]
     base = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
     t = time.perf_counter()
     p = patch_quadric.make(surfaces, count=COUNT)
