@@ -103,6 +103,7 @@ class _Prepared:
     area: float
     n_unreferenced: int
     findings: tuple[Finding, ...]
+    flip: bool
 
 
 def _prepare(s: Surface, name: str, islands: str) -> _Prepared:
@@ -110,13 +111,15 @@ def _prepare(s: Surface, name: str, islands: str) -> _Prepared:
     report = inspect_mesh(s.vertices, s.faces, self_intersection=False, cross=cross)
     found = [f for f in mesh_findings(report, name=name, must_be_closed=False, source=SOURCE)
              if f.code != "mesh.islands"]
+    # a closed, consistently wound surface with negative volume is wound inward: use outward normals
+    flip = report.closed and not len(report.winding_conflict_edges) and report.volume < 0
     fa = face_areas(s.vertices, s.faces, cross=cross)
     keep, fnd = _main_pieces(s, report.vertex_component, fa, name, islands)
     graph = vertex_adjacency(s.vertices, s.faces, unique_edges=report.edges.unique)
     area = float(fa[keep].sum())
     return _Prepared(keep=keep, graph=graph, cross=cross[keep], area=area,
                      n_unreferenced=int((~referenced(len(s.vertices), s.faces)).sum()),
-                     findings=tuple(found + fnd))
+                     findings=tuple(found + fnd), flip=flip)
 
 
 def _partition(s: Surface, prep: _Prepared, target: int, *, refine: int) -> dict:
@@ -131,6 +134,8 @@ def _partition(s: Surface, prep: _Prepared, target: int, *, refine: int) -> dict
     # the centre: the member nearest the members' area-weighted centroid (the seed itself once converged)
     centres = v[recentre_seeds(v, patch, len(seeds), weights)]
     nrm, _ = vertex_normals(v, f, cross=prep.cross)
+    if prep.flip:
+        nrm = -nrm
     a, n, spr = patch_statistics(v, f, patch, len(seeds), vertex_area=weights, vertex_normal=nrm)
     return {"centres": centres, "normals": n, "areas": a, "spread": spr, "patch": patch,
             "unreached": int((patch[referenced(len(v), f)] < 0).sum())}
