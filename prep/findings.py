@@ -24,6 +24,7 @@ CODES: dict[str, str] = {
     "placement.mirrored": "the montage appears left-right mirrored",
     "placement.misfit": "the co-registration residual is too large",
     "placement.headshape-outliers": "head-shape points were excluded as outliers",
+    "placement.unchecked": "a placement check could not run (e.g. no reference layout); the message says why",
     # meshes
     "mesh.open": "a surface that must be closed has holes",
     "mesh.non-manifold": "an edge is shared by more than two triangles",
