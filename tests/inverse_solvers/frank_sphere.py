@@ -90,3 +90,19 @@ def write_sphere_bundle(path, n_sensors: int = 32, n_sources: int = 150, radius:
               "source_areas": np.full(n_sources, 1e-5), "source_spread": np.zeros(n_sources),
               "source_hemisphere": (src[:, 0] > 0).astype(np.int8)}
     return write_bundle(path, manifest, arrays)
+
+
+def sphere_forward_model(electrodes: np.ndarray, radius: float = 0.09):
+    """A ForwardModel evaluating the closed form at any position (average reference)."""
+    from prep import ForwardModel, VolumeConductor
+
+    def evaluate(pos, normals):
+        out = np.stack([frank_potential(electrodes, pos, np.tile(e, (len(pos), 1)), radius) for e in np.eye(3)],
+                       axis=2)
+        out -= out.mean(axis=0)
+        return out if normals is None else np.einsum("nmk,mk->nm", out, normals)
+
+    cond = VolumeConductor(kind="spheres", conductivities=[0.33], centre=[0, 0, 0], radii=[radius])
+    return ForwardModel(solver="test-sphere", conductor=cond,
+                        sensor_labels=[f"E{i + 1}" for i in range(len(electrodes))],
+                        sensor_positions=electrodes, evaluate=evaluate)

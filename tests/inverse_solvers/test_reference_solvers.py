@@ -3,9 +3,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from inverse_solvers.frank_sphere import fibonacci_sphere, frank_potential, series_potential, sphere_leadfield
+from inverse_solvers.frank_sphere import (fibonacci_sphere, frank_potential, series_potential, sphere_forward_model,
+                                          sphere_leadfield)
 
-from prep import ForwardModel, InverseProblem, LeadField, VolumeConductor, make_registry
+from prep import InverseProblem, LeadField, make_registry
 from prep_plugins import inverse_dipole, inverse_minnorm
 
 RADIUS = 0.09
@@ -22,18 +23,6 @@ def sphere():
     leadfield = LeadField(matrix=lf, sensor_labels=[f"E{i + 1}" for i in range(48)], source_positions=src,
                           source_normals=nrm)
     return leadfield, el
-
-
-def _sphere_forward(el):
-    """A ForwardModel evaluating the closed-form sphere at any position (free orientation, average ref)."""
-    def evaluate(pos, normals):
-        out = np.stack([frank_potential(el, pos, np.tile(e, (len(pos), 1)), RADIUS) for e in np.eye(3)], axis=2)
-        out -= out.mean(axis=0)
-        return out if normals is None else np.einsum("nmk,mk->nm", out, normals)
-
-    cond = VolumeConductor(kind="spheres", conductivities=[0.33], centre=[0, 0, 0], radii=[RADIUS])
-    return ForwardModel(solver="test-sphere", conductor=cond, sensor_labels=[f"E{i + 1}" for i in range(len(el))],
-                        sensor_positions=el, evaluate=evaluate)
 
 
 def test_frank_closed_form_matches_legendre_series():
@@ -77,7 +66,7 @@ def test_dipole_fit_grid_search_finds_the_patch_without_a_forward_model(reg, sph
 
 def test_dipole_fit_recovers_an_off_grid_dipole_with_the_forward_model(reg, sphere):
     lf, el = sphere
-    fwd = _sphere_forward(el)
+    fwd = sphere_forward_model(el, RADIUS)
     true_pos = np.array([[0.012, -0.018, 0.047]])  # not a patch centre
     moment = np.array([[2e-8, -1e-8, 3e-8]])
     data = fwd.evaluate(true_pos, moment / np.linalg.norm(moment))[:, :1] * np.linalg.norm(moment)

@@ -43,3 +43,15 @@ def test_selftest_help_explains_why_the_leadfield_is_not_inverted(capsys):
         main(["selftest", "--help"])
     text = capsys.readouterr().out
     assert "no inverse" in text and "regularisation" in text
+
+
+def test_selftest_dipole_fit_uses_a_given_forward_model(tmp_path):
+    from inverse_solvers.frank_sphere import sphere_forward_model
+
+    bundle = load_bundle(write_sphere_bundle(tmp_path / "b.bundle", n_sensors=32, n_sources=120))
+    reg = make_registry(entry_points=False, plugins=[inverse_dipole])
+    fwd = sphere_forward_model(bundle.arrays["sensor_positions"], 0.09)
+    res = run_selftest(reg, bundle, snr=1e6, n_dipoles=3, seed=2, forward=fwd)
+    assert res.forward == "forward model"
+    # noiseless data of a patch dipole: the continuous fit lands on the patch (optimiser tolerance, from memory)
+    assert res.summary["dipole-fit"]["max_mm"] < 0.5
