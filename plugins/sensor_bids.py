@@ -23,7 +23,7 @@ import numpy as np
 from prep import ReadError, SensorReader, Sensors, SensorWriter, hookimpl
 from prep.atomic import write_text_atomic
 from prep.electrodes import Point, assemble, parse_number, parse_unit, text_lines
-from prep.labels import KIND_WORDS, fiducial_name
+from prep.labels import KIND_WORDS, fiducial_name, normalise_label
 from prep.units import unit_scale
 
 SUFFIX = "_electrodes.tsv"
@@ -179,6 +179,13 @@ def _fmt(v: float) -> str:
     return "n/a" if not math.isfinite(v) else repr(float(v))
 
 
+def _type_out(label: str, kind: str) -> str:
+    """The ``type`` cell: our kind, ``n/a`` for a scalp electrode whose label says so by itself."""
+    if kind == "eeg":
+        return "n/a" if normalise_label(label).kind == "eeg" else "eeg"  # e.g. an electrode at Nz
+    return kind
+
+
 def write_bids(sensors: Sensors, path: str | Path) -> list[Path]:
     """Write ``sensors`` as BIDS electrodes.tsv + coordsystem.json (metres, exact floats).
 
@@ -193,14 +200,15 @@ def write_bids(sensors: Sensors, path: str | Path) -> list[Path]:
         The TSV and the JSON written.
     """
     p = Path(path)
-    rows = [(lab, pos, kind) for lab, pos, kind in zip(sensors.labels, sensors.positions, sensors.kinds)]
+    rows = [(lab, pos, _type_out(lab, kind)) for lab, pos, kind in
+            zip(sensors.labels, sensors.positions, sensors.kinds)]
     rows += [(f"HSP{i + 1:04d}", pos, "headshape") for i, pos in enumerate(sensors.headshape)]
-    typed = any(kind != "eeg" for _, _, kind in rows)
+    typed = any(kind != "n/a" for _, _, kind in rows)
     lines = ["name\tx\ty\tz" + ("\ttype" if typed else "")]
     for lab, pos, kind in rows:
         cells = [lab, *(_fmt(v) for v in np.asarray(pos, dtype=float))]
         if typed:
-            cells.append("n/a" if kind == "eeg" else kind)
+            cells.append(kind)
         lines.append("\t".join(cells))
     meta: dict[str, Any] = {
         "EEGCoordinateSystem": "Other",
