@@ -9,7 +9,7 @@ and the distance between its peak (or fitted dipole) and the true patch is the
 localisation error.
 
 The dipole fit evaluates the bundle's forward model at arbitrary positions
-when one can be restored (``prep.forward.forward_from_bundle``); otherwise it
+when one can be restored from the bundle (:mod:`prep.forward`); otherwise it
 falls back to a grid search over the stored lead field.
 """
 from __future__ import annotations
@@ -66,11 +66,13 @@ class SelftestResult:
 def restore_forward(registry: Registry, bundle: Bundle) -> tuple[ForwardModel | None, str]:
     """The bundle's forward model if the kit can restore it, else None and the reason."""
     try:
-        from .forward import forward_from_bundle  # provided by the pipeline's forward module
+        from . import forward as fwd
     except ImportError:
-        return None, "grid search (this kit cannot restore forward models yet)"
+        return None, "grid search (this kit cannot restore forward models)"
     try:
-        return forward_from_bundle(registry, bundle), "forward model"
+        if hasattr(fwd, "forward_from_bundle"):
+            return fwd.forward_from_bundle(registry, bundle), "forward model"
+        return fwd.forward_from_state(registry, bundle.conductor(), bundle.manifest, bundle.arrays), "forward model"
     except (HeadprepError, KeyError) as exc:
         return None, f"grid search (forward model not restored: {exc})"
 

@@ -3,8 +3,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from inverse_solvers.frank_sphere import (fibonacci_sphere, frank_potential, series_potential, sphere_forward_model,
-                                          sphere_leadfield)
+from inverse_solvers.frank_sphere import (fibonacci_sphere, frank_potential, registry_sphere_model, series_potential,
+                                          sphere_forward_model, sphere_leadfield)
 
 from prep import InverseProblem, LeadField, make_registry
 from prep_plugins import inverse_dipole, inverse_minnorm
@@ -33,8 +33,14 @@ def test_frank_closed_form_matches_legendre_series():
     np.testing.assert_allclose(closed - closed.mean(), series - series.mean(), rtol=1e-6)
 
 
-def test_sloreta_localises_a_noiseless_dipole_exactly(reg, sphere):
-    lf, _ = sphere
+@pytest.mark.parametrize("model", ["frank-closed-form", "spheres-plugin"])
+def test_sloreta_localises_a_noiseless_dipole_exactly(reg, sphere, model):
+    lf, el = sphere
+    if model == "spheres-plugin":  # the kit's own 3-shell sphere solver, when installed
+        fm = registry_sphere_model(el)
+        if fm is None:
+            pytest.skip("no 'spheres' forward solver installed")
+        lf = fm.leadfield(lf.source_positions, lf.source_normals)
     solver = reg.get("inverse_solver", "sloreta")
     for j in (0, 57, 123, 399):  # zero localisation error without noise: Pascual-Marqui 2002
         data = lf.matrix[:, [j]] * 1e-8
