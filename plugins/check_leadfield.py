@@ -96,7 +96,7 @@ def check_spectrum(*, leadfield: LeadField, sensor_positions: np.ndarray, snr: f
     found = []
     if rank < expected:
         found.append(_finding(
-            "leadfield.rank-deficient", "warn",
+            "leadfield.rank-deficient", "fail",
             f"numerical rank {rank} is below the expected {expected} (n_sensors - 1 = {n - 1}, "
             f"{k} columns): some sensors carry no independent information (duplicates or a dead row?)",
             "spectrum", values={"numerical_rank": rank}, threshold=expected))
