@@ -65,6 +65,7 @@ def test_run_passport_options_route_to_checks_and_reject_unknown(tmp_path):
         run_passport(reg, leadfield, el, options={"snrr": 1.0})
     with pytest.raises(UsageError, match="must be float"):
         run_passport(reg, leadfield, el, options={"leadfield-depth": {"max_ratio": "big"}})
-    files = passport_pngs(p, tmp_path / "png")
+    files = passport_pngs(p, tmp_path / "png", src)
     assert [f.name for f in files] == list(PNG_NAMES.values())
+    assert len(passport_pngs(p, tmp_path / "png4")) == 4  # no positions: no map
     assert all(f.stat().st_size > 1000 for f in files)
