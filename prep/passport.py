@@ -161,7 +161,8 @@ def _error_map(values: np.ndarray, positions: np.ndarray, path: Path) -> Path:
     order = np.argsort(values)  # largest errors drawn last, on top
     p, v = positions[order] * 1e3, values[order] * 1e3
     vmax = float(np.nanpercentile(v, 95)) if np.isfinite(v).any() else 1.0
-    for k, (a, b, title) in enumerate(((0, 1, "top view (x across, y up the page)"), (1, 2, "side view (y across, z up)"))):
+    views = ((0, 1, "top view (x across, y up the page)"), (1, 2, "side view (y across, z up)"))
+    for k, (a, b, title) in enumerate(views):
         ax = fig.add_subplot(1, 2, k + 1)
         sc = ax.scatter(p[:, a], p[:, b], c=v, s=4, cmap="viridis", vmin=0.0, vmax=vmax)
         ax.set_aspect("equal")

@@ -96,7 +96,8 @@ def _human(passport: Passport, out: Path) -> str:
     lines = [f"passport written to {out}"]
     if "condition_number" in spec:
         lines.append(f"  spectrum: rank {spec['numerical_rank']}/{spec['expected_rank']}, condition number "
-                     f"{float(spec['condition_number']):.3g}, effective rank {spec['effective_rank']} at SNR {spec['snr']:g}")
+                     f"{float(spec['condition_number']):.3g}, effective rank {spec['effective_rank']} "
+                     f"at SNR {spec['snr']:g}")
     if "ratio" in dep:
         lines.append(f"  depth: superficial/deep column-norm ratio {float(dep['ratio']):.3g}")
     if "peak_localisation_error" in res:

@@ -37,12 +37,14 @@ def test_octave_reads_the_bundle_and_the_mat_exports(tmp_path):
     export_mat.export_mat(bundle, tmp_path / "v73.mat", version="7.3")
     read_npy, use, checksum, mat, _h5 = _blocks()
     (tmp_path / "read_npy.m").write_text(read_npy, encoding="utf-8")
-    probe = "E = ones(16, 1) * 1e-6;\n" + use + checksum + "\nprintf('%.12g\\n', W(2, 3), sum(S), double(labels{16}(2:end)) - 48);\n"
+    show = "printf('%.12g\\n', W(2, 3), sum(S), double(labels{16}(2:end)) - 48);\n"
+    probe = "E = ones(16, 1) * 1e-6;\n" + use + checksum + "\n" + show
     out = _octave(tmp_path, probe).split()
     w = bundle.arrays["leadfield"]
     assert float(out[-4]) == pytest.approx(w[1, 2], rel=1e-11)  # reference: the bundle read by numpy
     assert out[-2:] == ["1", "6"]  # label E16
     for name in ("subject.mat", "v73.mat"):
-        probe = mat.replace("'subject.mat'", f"'{name}'") + "printf('%.12g %d %s\\n', W(2, 3), numel(labels), man.frame);\n"
+        show = "printf('%.12g %d %s\\n', W(2, 3), numel(labels), man.frame);\n"
+        probe = mat.replace("'subject.mat'", f"'{name}'") + show
         assert _octave(tmp_path, probe).split()[-3:] == [f"{w[1, 2]:.12g}", "16", "anatomy"]
     assert np.isfinite(w).all()
