@@ -14,7 +14,7 @@ falls back to a grid search over the stored lead field.
 """
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -89,7 +89,8 @@ def _reference_operator(reference: str, labels: Sequence[str]) -> np.ndarray:
 
 
 def run_selftest(registry: Registry, bundle: Bundle, *, snr: float = 3.0, n_dipoles: int = 20, seed: int = 0,
-                 forward: ForwardModel | None | str = "auto", solvers: Sequence[str] | None = None) -> SelftestResult:
+                 forward: ForwardModel | None | str = "auto", solvers: Sequence[str] | None = None,
+                 progress: Callable[[str | None], None] | None = None) -> SelftestResult:
     """Simulate ``n_dipoles`` single dipoles and localise each with every inverse solver.
 
     Parameters
@@ -107,6 +108,8 @@ def run_selftest(registry: Registry, bundle: Bundle, *, snr: float = 3.0, n_dipo
         "auto" restores it from the bundle when possible.
     solvers : names, optional
         Default: every registered inverse solver.
+    progress : callable, optional
+        Called with the solver's name after each solver has finished.
 
     Returns
     -------
@@ -154,6 +157,8 @@ def run_selftest(registry: Registry, bundle: Bundle, *, snr: float = 3.0, n_dipo
             est = solve(problem(slice(None), float(np.median(sigmas))), "all self-test dipoles")
             found = lf.source_positions[np.argmax(np.abs(np.asarray(est.amplitudes)), axis=0)]
         errors[d.name] = np.linalg.norm(found - lf.source_positions[idx], axis=1)
+        if progress is not None:
+            progress(d.name)
     summary = {name: {"median_mm": float(np.median(e) * 1e3), "p90_mm": float(np.percentile(e, 90) * 1e3),
                       "max_mm": float(e.max() * 1e3)} for name, e in errors.items()}
     return SelftestResult(snr=snr, seed=seed, true_indices=idx, errors=errors, summary=summary, forward=how)
