@@ -81,3 +81,24 @@ def test_dipole_fit_recovers_an_off_grid_dipole_with_the_forward_model(reg, sphe
     assert np.linalg.norm(est.positions[0] - true_pos[0]) < 2e-4  # noiseless: exact up to the optimiser tolerance
     np.testing.assert_allclose(est.moments[0, :, 0], moment[0], rtol=0.02)
     assert est.metrics["residual_variance"] < 1e-6
+
+
+def test_dipole_fit_steps_around_positions_the_model_refuses(reg, sphere):
+    from dataclasses import replace
+
+    from prep import UsageError
+
+    lf, el = sphere
+    fwd = sphere_forward_model(el, RADIUS)
+
+    def guarded(pos, normals):
+        if np.any(np.linalg.norm(pos, axis=1) > 0.07):  # like a model that cannot place a source there
+            raise UsageError("outside the innermost compartment")
+        return fwd.evaluate(pos, normals)
+
+    true_pos = np.array([[0.0, 0.02, 0.066]])  # 69 mm from the centre: the search brushes the limit
+    data = fwd.evaluate(true_pos, np.array([[0.0, 0.0, 1.0]])) * 1e-8
+    est = reg.get("inverse_solver", "dipole-fit").solve(
+        InverseProblem(leadfield=lf, data=data, forward=replace(fwd, evaluate=guarded)))
+    assert np.linalg.norm(est.positions[0]) <= 0.07
+    assert np.linalg.norm(est.positions[0] - true_pos[0]) < 0.005
