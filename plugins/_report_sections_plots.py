@@ -101,8 +101,8 @@ def cross_sections(assets: Assets, meshes: Sequence[Mesh], spheres: tuple[np.nda
                           label=f"sources within {SOURCE_SLAB_M * 1e3:.0f} mm"))
     fig.legend(handles=handles, loc="lower center", ncol=min(len(handles), 6), fontsize=9, frameon=False)
     fig.subplots_adjust(left=0.05, right=0.99, bottom=0.24, top=0.93, wspace=0.28)
-    names = [m.role.replace("_", " ") for m in meshes] or (
-        [f"{len(spheres[1])} concentric spheres"] if spheres is not None else [])
+    names = ([f"{len(spheres[1])} concentric spheres"] if spheres is not None else []) + [
+        m.role.replace("_", " ") for m in meshes]
     alt = (f"Three cross-sections through the head model ({', '.join(names)}): "
            f"{'; '.join(described)}. Electrodes are diamonds, sources small dots.")
     return assets.figure(fig, alt)
