@@ -1,1 +1,162 @@
-"""Built-in plugin `forward_spheres` (not yet filled in: provides nothing)."""
+"""Built-in plugin `forward_spheres`: EEG lead field of N concentric isotropic spherical shells.
+
+Analytic Legendre-series solution (de Munck & Peters 1993; Zhang 1995 restricted
+to isotropic shells) with per-degree interface factors from a transfer-matrix
+recursion, the slow tail summed in closed form and the remainder summed until
+converged (see ``_forward_spheres_series`` and docs/sphere-model.md).
+
+Electrodes are projected radially from the centre onto the outer sphere.
+Dipoles must lie strictly inside the innermost sphere: ``evaluate`` raises
+:class:`prep.errors.UsageError` naming the first (0-based) source that does not,
+and never returns NaN for it.
+"""
+from __future__ import annotations
+
+import os
+from collections.abc import Mapping, Sequence
+from concurrent.futures import ThreadPoolExecutor
+from typing import Any
+
+import numpy as np
+
+from prep import ForwardModel, ForwardSolver, UsageError, VolumeConductor, hookimpl
+from prep.geometry.spheres import project_to_sphere
+
+from . import _forward_spheres_series as series
+
+NAME = "spheres"
+DEFAULTS: dict[str, Any] = {
+    "tolerance": 1e-8,       # relative to the largest |V| of a source over the electrodes
+    "workers": 0,            # threads; 0 = up to 4, bounded by the CPU count
+    "chunk_elements": 262144,  # electrodes x sources per block of work (bounds memory)
+}
+
+
+def _project(conductor: VolumeConductor, positions: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Unit directions (n, 3) from the centre and positions (n, 3) m on the outer sphere."""
+    projected, valid = project_to_sphere(positions, conductor.centre, float(conductor.radii[-1]))
+    if not valid.all():
+        bad = int(np.flatnonzero(~valid)[0])
+        raise UsageError(f"sensor {bad} is at the sphere centre or not finite: cannot project it onto the "
+                         f"outer sphere")
+    return (projected - conductor.centre) / conductor.radii[-1], projected
+
+
+def _reference_row(labels: Sequence[str], reference: str) -> int | None:
+    if reference == "average":
+        return None
+    if reference not in labels:
+        raise UsageError(f"reference electrode '{reference}' is not among the sensors "
+                         f"({', '.join(labels[:8])}{'...' if len(labels) > 8 else ''})")
+    return list(labels).index(reference)
+
+
+def _workers(requested: int) -> int:
+    if requested > 0:
+        return int(requested)
+    return max(1, min(4, os.cpu_count() or 1))
+
+
+def _make_evaluate(conductor: VolumeConductor, dirs: np.ndarray, ref_row: int | None,
+                   params: Mapping[str, Any]):  # noqa: ANN202
+    radii = conductor.radii
+    sig = conductor.conductivities
+    radius = float(radii[-1])
+    tol = float(params["tolerance"])
+    workers = _workers(int(params["workers"]))
+    per_chunk = max(1, int(params["chunk_elements"]) // max(1, len(dirs)))
+    gain = 1.0 / (4.0 * np.pi * sig[-1] * radius * radius)
+
+    def evaluate(positions: np.ndarray, normals: np.ndarray | None) -> np.ndarray:
+        """Lead field (n, m) for fixed or (n, m, 3) for free orientation, V/(A*m)."""
+        src = np.asarray(positions, dtype=np.float64) - conductor.centre
+        nrm = None if normals is None else np.asarray(normals, dtype=np.float64)
+        b = np.linalg.norm(src, axis=1)
+        outside = ~(b < radii[0])
+        if outside.any():
+            i = int(np.flatnonzero(outside)[0])
+            raise UsageError(f"source {i} lies {b[i]:.6g} m from the centre, not inside the innermost "
+                             f"sphere (radius {radii[0]:.6g} m); the sphere model cannot place it")
+        m = len(src)
+        shape = (len(dirs), m) if nrm is not None else (len(dirs), m, 3)
+        out = np.empty(shape)
+        if m == 0:
+            return out
+        weights = series.weights_for(radii, sig, float(b.max()) / radius, tol)
+        order = np.argsort(b, kind="stable")
+        blocks = [order[i:i + per_chunk] for i in range(0, m, per_chunk)]
+
+        def one(idx: np.ndarray) -> None:
+            out[:, idx] = series.chunk_potentials(dirs, src[idx], None if nrm is None else nrm[idx],
+                                                  weights, radius, tol)
+
+        if workers == 1 or len(blocks) == 1:
+            for idx in blocks:
+                one(idx)
+        else:
+            with ThreadPoolExecutor(max_workers=workers) as pool:
+                list(pool.map(one, blocks))
+        out *= gain
+        if ref_row is None:
+            out -= out.mean(axis=0, keepdims=True)
+        else:
+            out -= out[ref_row][None]
+        return out
+
+    return evaluate
+
+
+def build(conductor: VolumeConductor, sensor_labels: Sequence[str], sensor_positions: np.ndarray, *,
+          reference: str = "average", **options: Any) -> ForwardModel:
+    """Prepare the sphere model for one set of electrodes.
+
+    Parameters
+    ----------
+    conductor : VolumeConductor
+        ``kind="spheres"``: centre (3,) m, radii (N,) m and conductivities (N,) S/m inside -> out.
+    sensor_labels : sequence of str, length n
+    sensor_positions : (n, 3) float64, metres, in the conductor's frame
+        Projected radially from the centre onto the outer sphere.
+    reference : str
+        ``"average"`` or one of ``sensor_labels``.
+    **options
+        ``tolerance`` (float, relative), ``workers`` (int, 0 = auto),
+        ``chunk_elements`` (int).
+
+    Returns
+    -------
+    ForwardModel
+        ``evaluate(positions (m,3), normals (m,3) or None)`` gives (n, m) or
+        (n, m, 3) V/(A*m) against ``reference``.
+    """
+    if conductor.kind != "spheres":
+        raise UsageError(f"the '{NAME}' forward solver needs a concentric-spheres conductor, "
+                         f"got kind '{conductor.kind}'")
+    unknown = set(options) - set(DEFAULTS)
+    if unknown:
+        raise UsageError(f"unknown option(s) for forward solver '{NAME}': {', '.join(sorted(unknown))}")
+    params = {**DEFAULTS, **options}
+    if not 0 < float(params["tolerance"]) < 1:
+        raise UsageError(f"forward solver '{NAME}': tolerance must be in (0, 1), got {params['tolerance']}")
+    labels = tuple(sensor_labels)
+    dirs, projected = _project(conductor, sensor_positions)
+    ref_row = _reference_row(labels, reference)
+    return ForwardModel(solver=NAME, conductor=conductor, sensor_labels=labels, sensor_positions=projected,
+                        evaluate=_make_evaluate(conductor, dirs, ref_row, params), reference=reference,
+                        params=params, arrays={}, frame=conductor.frame)
+
+
+def restore(*, conductor: VolumeConductor, sensor_labels: Sequence[str], sensor_positions: np.ndarray,
+            reference: str = "average", params: Mapping[str, Any] | None = None,
+            arrays: Mapping[str, np.ndarray] | None = None) -> ForwardModel:
+    """Rebuild a model from what a bundle stored (the sphere model keeps no arrays)."""
+    opts = {k: v for k, v in dict(params or {}).items() if k in DEFAULTS}
+    return build(conductor, sensor_labels, sensor_positions, reference=reference, **opts)
+
+
+@hookimpl
+def headprep_register_forward_solvers() -> list[ForwardSolver]:
+    return [ForwardSolver(
+        name=NAME,
+        description="concentric isotropic spheres (N shells), analytic Legendre series",
+        conductor_kind="spheres", defaults=dict(DEFAULTS), build=build, restore=restore)]
