@@ -131,8 +131,11 @@ def spectrum(assets: Assets, s: np.ndarray, rank: int, cond: float, where: str) 
     return assets.figure(fig, alt)
 
 
-def depth_profile(assets: Assets, depth: np.ndarray, norms: np.ndarray) -> str:
-    """Column norm against source depth (log scale), with decile medians."""
+def depth_profile(assets: Assets, depth: np.ndarray, norms: np.ndarray, measure: str = "") -> str:
+    """Column norm against source depth (log scale when it spans decades), with decile medians.
+
+    ``measure`` names how the passport measured depth (e.g. ``nearest-sensor``).
+    """
     fig = render.figure(figsize=(5.6, 3.6))
     ax = fig.subplots()
     d = depth * 1e3
@@ -149,7 +152,7 @@ def depth_profile(assets: Assets, depth: np.ndarray, norms: np.ndarray) -> str:
         ax.set_yscale("log")
         ax.yaxis.set_minor_locator(NullLocator())
     fig.subplots_adjust(left=0.15, right=0.97, bottom=0.14, top=0.9)
-    ax.set_xlabel("source depth (mm)")
+    ax.set_xlabel(f"source depth (mm{', ' + measure.replace('-', ' ') if measure else ''})")
     ax.set_ylabel("lead-field column norm, V/(A*m)")
     ax.set_title("depth profile", fontsize=11)
     ax.grid(True, which="both", color="#eeeeee", lw=0.6)

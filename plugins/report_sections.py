@@ -177,13 +177,14 @@ def render_passport(bundle: Bundle, assets: Assets) -> str:
              f'</span>, numerical rank <span id="lf-rank">{rank}</span>, condition number '
              f'<span id="lf-cond" data-value="{cond!r}">{cond:.4g}</span> ({esc(how)}).</p>',
              plots.spectrum(assets, s, max(rank, 1), cond, where)]
-    depth, norms = a.get("passport_source_depth"), a.get("passport_column_norms")
+    depth, norms = data.passport_array(bundle, "depth"), data.passport_array(bundle, "column_norm")
     if depth is not None and norms is not None and len(depth) == len(norms):
-        parts.append(plots.depth_profile(assets, np.asarray(depth, float), np.asarray(norms, float)))
+        measure = data.find_metric(bundle.manifest.get("passport") or {}, "depth_measure")
+        parts.append(plots.depth_profile(assets, depth, norms, measure=str(measure[1]) if measure else ""))
     else:
         parts.append(absent("The passport stored no source depths with column norms, so no depth profile "
                             "is drawn."))
-    ple, sd = a.get("passport_ple"), a.get("passport_sd")
+    ple, sd = data.passport_array(bundle, "ple"), data.passport_array(bundle, "sd")
     if ple is not None or sd is not None:
         parts.append(plots.resolution(assets, ple, sd))
     else:
