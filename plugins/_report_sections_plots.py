@@ -115,9 +115,11 @@ def spectrum(assets: Assets, s: np.ndarray, rank: int, cond: float, where: str) 
     rel = s / s[0]
     idx = np.arange(1, len(s) + 1)
     ax.semilogy(idx[:rank], rel[:rank], marker="o", ms=3, lw=1.2, color="#2f6f8f", label="within rank")
-    if rank < len(s):
-        ax.semilogy(idx[rank:], np.maximum(rel[rank:], 1e-18), marker="x", ms=4, lw=0, color="#9b2f25",
-                    label="below numerical rank")
+    floor = max(float(rel[rank - 1]) / 10.0, 1e-18)
+    if rank < len(s):  # the null direction(s), e.g. of the reference, drawn at the floor: off scale
+        ax.semilogy(idx[rank:], np.full(len(s) - rank, floor), marker="v", ms=5, lw=0, color="#9b2f25",
+                    label=f"below numerical rank ({len(s) - rank}, off scale)")
+    ax.set_ylim(floor / 1.5, 1.5)
     ax.yaxis.set_minor_locator(NullLocator())
     fig.subplots_adjust(left=0.15, right=0.97, bottom=0.14, top=0.9)
     ax.set_xlabel("component")
@@ -139,7 +141,7 @@ def depth_profile(assets: Assets, depth: np.ndarray, norms: np.ndarray, measure:
     fig = render.figure(figsize=(5.6, 3.6))
     ax = fig.subplots()
     d = depth * 1e3
-    ax.scatter(d, norms, s=5, c="#2f6f8f", alpha=0.45, lw=0)
+    ax.scatter(d, norms, s=9, c="#2f6f8f", alpha=0.5, lw=0)
     edges = np.unique(np.percentile(d, np.linspace(0, 100, 11)))
     centres, med = [], []
     for lo, hi in zip(edges[:-1], edges[1:]):
@@ -151,7 +153,7 @@ def depth_profile(assets: Assets, depth: np.ndarray, norms: np.ndarray, measure:
     if np.all(norms > 0) and norms.max() > 20 * norms.min():
         ax.set_yscale("log")
         ax.yaxis.set_minor_locator(NullLocator())
-    fig.subplots_adjust(left=0.15, right=0.97, bottom=0.14, top=0.9)
+    fig.subplots_adjust(left=0.19, right=0.97, bottom=0.14, top=0.9)
     ax.set_xlabel(f"source depth (mm{', ' + measure.replace('-', ' ') if measure else ''})")
     ax.set_ylabel("lead-field column norm, V/(A*m)")
     ax.set_title("depth profile", fontsize=11)

@@ -56,7 +56,7 @@ def render_electrodes(bundle: Bundle, assets: Assets) -> str:
     else:
         parts.append(f"<p>Colour: signed distance to the skin in mm, blue inside, green on the skin, "
                      f"orange to red outside (scale \u00b1{lim:.0f} mm). Flagged electrodes are named.</p>")
-    parts.append(_gallery(electrode_views(assets, scalp, el, lim)))
+    parts.append(_gallery(electrode_views(assets, scalp, el, lim, headshape=bundle.arrays.get("headshape_points"))))
     if sd is not None:
         worst = int(np.argmax(np.abs(sd)))
         parts.append(f"<p>Median distance to the skin {np.median(sd) * 1e3:.1f} mm; largest "
@@ -222,6 +222,8 @@ def render_provenance(bundle: Bundle, assets: Assets) -> str:
     man = bundle.manifest
     kit = man.get("kit", {})
     fwd = man.get("forward") or {}
+    if "solver" not in fwd and isinstance(fwd.get("forward"), dict):  # the state nested one level down
+        fwd = fwd["forward"]
     facts: list[tuple[str, Any]] = [
         ("kit", f"{kit.get('name', '?')} {kit.get('version', '?')}"),
         ("bundle format", f"{man.get('format')} schema {man.get('schema_version')}"),

@@ -39,7 +39,7 @@ def find_chromium() -> str | None:
 class WebSocket:
     """Just enough of a WebSocket client for the DevTools protocol."""
 
-    def __init__(self, url: str, timeout: float = 30.0) -> None:
+    def __init__(self, url: str, timeout: float = 120.0) -> None:
         assert url.startswith("ws://127.0.0.1:"), url
         hostport, _, path = url[len("ws://"):].partition("/")
         host, port = hostport.split(":")
@@ -121,7 +121,7 @@ class Browser:
              "--remote-debugging-port=0", f"--window-size={size[0]},{size[1]}", "about:blank"],
             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, stdin=subprocess.DEVNULL)
         port_file = profile / "DevToolsActivePort"
-        deadline = time.monotonic() + 30
+        deadline = time.monotonic() + 120
         while not (port_file.is_file() and port_file.read_text().count("\n") >= 1):
             if self.proc.poll() is not None or time.monotonic() > deadline:
                 self.close()
@@ -168,7 +168,7 @@ class Browser:
             if "method" in msg:
                 self.events.append(msg)
 
-    def wait_for(self, event: str, timeout: float = 30.0) -> dict[str, Any]:
+    def wait_for(self, event: str, timeout: float = 120.0) -> dict[str, Any]:
         """Wait for an event (or return it if it already came)."""
         for e in self.events:
             if e["method"] == event:

@@ -82,6 +82,7 @@ def make_synthetic_bundle(path: Path, *, seed: int = 7, n_sensors: int = 32, n_p
     if scalp:
         arrays["scalp_vertices"], arrays["scalp_faces"] = sv, sf
     if placement:
+        arrays["headshape_points"] = sv[sv[:, 2] > -0.02][::9] * 1.002
         arrays["sensor_digitized"] = pos + normal * dist[:, None]
         arrays["placement_signed_distance"] = dist
     cx = _cortex(rng, n_patches)
