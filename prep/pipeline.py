@@ -214,8 +214,18 @@ def _conductor(registry: Registry, recipe: Recipe, inputs: SubjectInputs, sensor
     model = recipe.method("head_model")
     findings: list[Finding] = []
     if model == "spheres":
-        cond = fwd.sphere_conductor(sensor_positions, centre=hm.get("centre"), radii=hm.get("radii"),
-                                    conductivities=hm.get("conductivities"))
+        radii = hm.get("radii")
+        centre = hm.get("centre")
+        sigma = hm.get("conductivities")
+        layers = [s for s in (inputs.inner_skull, inputs.outer_skull) if s is not None]
+        if radii is None and len(layers) == 2 and (sigma is None or len(sigma) == 3):
+            # the subject's own layers set the shells: mean distance of each mesh from the centre
+            if centre is None:
+                centre, _ = fwd.fit_sphere(sensor_positions)
+            centre = np.asarray(centre, dtype=float)
+            radii = [float(np.linalg.norm(s.vertices - centre, axis=1).mean())
+                     for s in (*layers, inputs.scalp)]
+        cond = fwd.sphere_conductor(sensor_positions, centre=centre, radii=radii, conductivities=sigma)
         return cond, findings
     if model == "bem":
         from .layers import check_layers, derive_layers
@@ -250,8 +260,18 @@ def step_forward(registry: Registry, recipe: Recipe, inputs: SubjectInputs, alig
     hm_opts = {k: v for k, v in recipe.plugin_options("head_model").items()}
     ref = recipe.steps["forward"]["reference"]
     fm = fwd.build_forward(registry, conductor, labels, positions, reference=ref, options=hm_opts)
-    centres, normals = patches.arrays["source_positions"], patches.arrays["source_normals"]
-    arrays: dict[str, np.ndarray] = {}
+    keep = ~_outside_brain(conductor, patches.arrays["source_positions"])
+    if not keep.all():
+        out = np.flatnonzero(~keep)
+        findings.append(Finding(
+            code="patches.outside", severity="warn",
+            message=f"{out.size} of {keep.size} patches lie outside the brain compartment of the "
+                    f"{conductor.kind} head model and were left out of the lead field",
+            subjects=tuple(f"patch {i}" for i in out[:20]), values={"excluded": int(out.size)},
+            source="pipeline"))
+    centres = patches.arrays["source_positions"][keep]
+    normals = patches.arrays["source_normals"][keep]
+    arrays: dict[str, np.ndarray] = {"source_keep": keep}
     orient = recipe.steps["forward"]["orientation"]
     if orient in ("fixed", "both"):
         arrays["leadfield"] = fm.leadfield(centres, normals).matrix
@@ -267,6 +287,33 @@ def step_forward(registry: Registry, recipe: Recipe, inputs: SubjectInputs, alig
             arrays[f"layer{i}_faces"] = s.faces
     meta = {"forward": state, "head_model": conductor.describe()}
     return StepResult(meta=meta, arrays=arrays, findings=findings)
+
+
+def _outside_brain(conductor, positions: np.ndarray) -> np.ndarray:  # noqa: ANN001 - VolumeConductor
+    """(m,) bool: dipoles outside the innermost compartment (a model cannot place them)."""
+    if conductor.kind == "spheres":
+        return fwd.outside_innermost(conductor, positions)
+    from .geometry.layers import inside
+
+    inner = conductor.layers[0]
+    return ~np.asarray(inside(positions, inner.vertices, inner.faces), dtype=bool)
+
+
+def keep_sources(patches: StepResult, keep: np.ndarray) -> StepResult:
+    """The patches step's result restricted to the sources the head model kept."""
+    if keep.all():
+        return patches
+    n = keep.size
+    arrays = {k: (v[keep] if k.startswith("source_") and k != "source_vertex_patch" and len(v) == n else v)
+              for k, v in patches.arrays.items()}
+    if "source_vertex_patch" in arrays:
+        renumber = np.full(n + 1, -1, dtype=np.int64)
+        renumber[:n][keep] = np.arange(int(keep.sum()))
+        vp = np.asarray(arrays["source_vertex_patch"])
+        arrays["source_vertex_patch"] = renumber[np.where(vp < 0, n, vp)]
+    meta = {**patches.meta, "patches": {**patches.meta["patches"], "count": int(keep.sum()),
+                                        "excluded_by_head_model": int(n - keep.sum())}}
+    return StepResult(meta=meta, arrays=arrays, findings=patches.findings)
 
 
 def step_passport(registry: Registry, recipe: Recipe, align: StepResult, patches: StepResult,
@@ -375,6 +422,7 @@ def prepare_subject(registry: Registry, recipe: Recipe, *, out: str | os.PathLik
                                                 "forward": recipe.steps["forward"], **versions},
                              lambda: step_forward(registry, recipe, inputs, align, patches))
     step("lead field")
+    patches = keep_sources(patches, np.asarray(forward.arrays.pop("source_keep"), dtype=bool))
     passport, _ = _cached(cache, "passport", {"up": [k_fwd], "checks": recipe.steps.get("checks"), **versions},
                           lambda: step_passport(registry, recipe, align, patches, forward))
     step("passport")
@@ -385,10 +433,11 @@ def prepare_subject(registry: Registry, recipe: Recipe, *, out: str | os.PathLik
     step("bundle")
     want_report = recipe.output.get("report", True) if report is None else report
     if want_report and registry.descriptors("report_section"):
+        from .bundle import load_bundle
         from .report import write_report
 
-        result.report = write_report(registry, result.bundle, result.bundle.parent / f"{recipe.subject}-report.html",
-                                     force=True)
+        result.report = write_report(load_bundle(result.bundle), registry,
+                                     result.bundle.parent / f"{recipe.subject}-report.html", force=True)
     step("report")
     return result
 
