@@ -263,16 +263,16 @@ def build_report(bundle: Bundle, registry: Any) -> str:
             f'is fetched from a network.</footer></main></body></html>\n')
 
 
-def write_report(registry: Any, bundle: Bundle | str | os.PathLike[str], out: str | os.PathLike[str], *,
+def write_report(bundle: Bundle | str | os.PathLike[str], registry: Any, out: str | os.PathLike[str], *,
                  force: bool = False) -> Path:
     """Build the page and write it atomically to ``out`` (refused if it exists, unless ``force``).
 
     Parameters
     ----------
-    registry : Registry
     bundle : Bundle or path
         A loaded bundle, or a bundle's path (loaded and verified here:
         :class:`~prep.errors.BundleError` if damaged, and nothing is written).
+    registry : Registry
     out : path
         The HTML file.
     force : bool

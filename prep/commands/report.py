@@ -34,7 +34,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
     started = time.perf_counter()
     bundle = load_bundle(args.bundle)
-    path = write_report(ctx.registry, bundle, args.out, force=args.force)
+    path = write_report(bundle, ctx.registry, args.out, force=args.force)
     findings = bundle.findings
     verdict = verdict_of(findings)
     seconds = time.perf_counter() - started

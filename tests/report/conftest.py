@@ -166,7 +166,7 @@ def _page(bundle: Path) -> Path:
     from prep.registry import make_registry
     from prep.report import write_report
 
-    return write_report(make_registry(), load_bundle(bundle), bundle.parent / f"{bundle.name}.html")
+    return write_report(load_bundle(bundle), make_registry(), bundle.parent / f"{bundle.name}.html")
 
 
 @pytest.fixture(scope="session")
