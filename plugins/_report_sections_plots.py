@@ -24,7 +24,7 @@ PLANES = {
     "coronal": (1, 0, 2, ("left", "right"), ("inferior", "superior")),
     "axial": (2, 0, 1, ("left", "right"), ("posterior", "anterior")),
 }
-LAYER_COLOURS = ("#7a4e9c", "#4f7f3a", "#b5651d", "#2f6f8f", "#8f2f4f")
+LAYER_COLOURS = ("#7a4e9c", "#4f7f3a", "#b5651d", "#2f6f8f", "#8f2f4f", "#6b6b6b")
 SENSOR_SLAB_M = 0.012
 SOURCE_SLAB_M = 0.004
 
@@ -69,9 +69,10 @@ def cross_sections(assets: Assets, meshes: Sequence[Mesh], spheres: tuple[np.nda
                 if name not in seen:
                     seen.add(name)
                     handles.append(Line2D([], [], color=colour, lw=1.6, label=name))
+        first = 0 if spheres is None else len(spheres[1])  # meshes take the colours after the spheres'
         for i, mesh in enumerate(meshes):
             seg = _segments(mesh, n_ax, offset)
-            colour = LAYER_COLOURS[i % len(LAYER_COLOURS)]
+            colour = LAYER_COLOURS[(first + i) % len(LAYER_COLOURS)]
             if len(seg):
                 ax.add_collection(LineCollection(seg[:, :, [h_ax, v_ax]] * 1e3, colors=colour, linewidths=1.3))
             if mesh.role not in seen:

@@ -180,3 +180,27 @@ class Browser:
                 self.events.append(msg)
                 if msg["method"] == event:
                     return msg
+
+
+IMAGES_JS = """JSON.stringify(Array.from(document.images).map(i => ({
+  scheme: i.src.split(':')[0], complete: i.complete, w: i.naturalWidth, h: i.naturalHeight, alt: i.alt})))"""
+
+
+def open_page(executable: str, page: Path, profile: Path) -> tuple[list[dict], list[dict], Any]:
+    """Load ``page`` from disk at 1200 x 900; return (images, DevTools events, screenshot RGB array)."""
+    import io
+
+    import numpy as np
+    from matplotlib import image as mpimg
+
+    with Browser(executable, profile) as b:
+        for domain in ("Page", "Runtime", "Log", "Network"):
+            b.call(f"{domain}.enable")
+        b.call("Emulation.setDeviceMetricsOverride", width=1200, height=900, deviceScaleFactor=1, mobile=False)
+        b.call("Page.navigate", url=page.resolve().as_uri())
+        b.wait_for("Page.loadEventFired")
+        images = json.loads(b.call("Runtime.evaluate", expression=IMAGES_JS, returnByValue=True)["result"]["value"])
+        shot = b.call("Page.captureScreenshot", format="png")["data"]
+        events = list(b.events)
+    pixels = mpimg.imread(io.BytesIO(base64.b64decode(shot)), format="png")
+    return images, events, np.asarray(pixels)[..., :3]
