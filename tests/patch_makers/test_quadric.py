@@ -210,3 +210,10 @@ def test_bad_options(reg, sphere) -> None:
         _make(reg, [sphere], islands="merge")
     with pytest.raises(UsageError):
         _make(reg, [], count=10)
+
+
+def test_inward_wound_cortex_gets_outward_normals(reg, sphere, sphere_patches) -> None:
+    inverted = Surface(vertices=sphere.vertices, faces=sphere.faces[:, ::-1], role="cortex")
+    p = _make(reg, [inverted], count=1000)
+    assert "mesh.inverted" in {x.code for x in p.findings}
+    assert (np.einsum("ij,ij->i", p.normals, p.centres) > 0).all()  # radial, outward
