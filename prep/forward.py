@@ -37,21 +37,11 @@ DEFAULT_SHELLS: dict[int, tuple[tuple[float, ...], tuple[float, ...]]] = {
 
 
 def fit_sphere(points: ArrayLike) -> tuple[FloatArray, float]:
-    """Least-squares sphere (algebraic start, geometric refinement) through ``points``.
+    """Least-squares sphere through ``points`` (n, 3) metres: ``(centre (3,) m, radius m)``.
 
-    Parameters
-    ----------
-    points : (n, 3) float64, metres, n >= 4 and not coplanar
-
-    Returns
-    -------
-    centre : (3,) float64, metres
-    radius : float, metres
-
-    Raises
-    ------
-    UsageError
-        ``input.too-few-points`` when the points cannot determine a sphere.
+    :func:`prep.geometry.spheres.fit_sphere` with the kit's error: a
+    :class:`UsageError` coded ``input.too-few-points`` when fewer than 4, non-finite
+    or coplanar points cannot determine a sphere.
     """
     try:
         return _spheres.fit_sphere(points)

@@ -163,8 +163,9 @@ def test_search_start_without_anatomy_fiducials(scalps: dict, shape: str) -> Non
         assert any(f.code == "input.fiducial-missing" for f in a.findings)
         errs.append(transform_error(a.transform.matrix, s.truth))
     errs = np.array(errs)
-    # without fiducials in the fit the weakest rotation is looser (test data): 2 mm / 3 degrees
-    assert np.median(errs[:, 0]) < 0.002 and np.median(errs[:, 1]) < 3.0
+    # the same bounds as with fiducials (issue 4); the nose decides front from back on the symmetric ellipsoid
+    assert np.median(errs[:, 0]) < 0.002 and np.median(errs[:, 1]) < 1.5
+    assert errs[:, 1].max() < 5.0
 
 
 def _bare(labels: tuple, positions: np.ndarray, fiducials: dict) -> Sensors:
