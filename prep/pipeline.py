@@ -280,12 +280,12 @@ def step_forward(registry: Registry, recipe: Recipe, inputs: SubjectInputs, alig
     if "leadfield" not in arrays:  # the passport and the bundle's accessors need the fixed one
         arrays["leadfield"] = np.einsum("nmk,mk->nm", arrays["leadfield_free"], normals)
     state, state_arrays = fwd.forward_state(fm)
-    arrays.update({f"forward_{k}": v for k, v in state_arrays.items()})
+    arrays.update(state_arrays)
     if conductor.kind == "layers":
         for i, s in enumerate(conductor.layers):
             arrays[f"layer{i}_vertices"] = s.vertices
             arrays[f"layer{i}_faces"] = s.faces
-    meta = {"forward": state, "head_model": conductor.describe()}
+    meta = {"forward": state["forward"], "head_model": conductor.describe()}
     return StepResult(meta=meta, arrays=arrays, findings=findings)
 
 
