@@ -15,24 +15,8 @@ PLUGINS = ROOT / "plugins"
 
 
 def _imports(path: Path) -> set[str]:
-    """Absolute module names imported by a file (relative imports resolved inside its package)."""
-    tree = ast.parse(path.read_text(encoding="utf-8"))
-    pkg_parts = ["prep" if path.is_relative_to(CORE) else "prep_plugins",
-                 *path.relative_to(CORE if path.is_relative_to(CORE) else PLUGINS).parent.parts]
-    out = set()
-    for node in ast.walk(tree):
-        if isinstance(node, ast.Import):
-            out |= {a.name for a in node.names}
-        elif isinstance(node, ast.ImportFrom):
-            if node.level:
-                base = pkg_parts[: len(pkg_parts) - node.level + 1]
-                mod = ".".join(base + ([node.module] if node.module else []))
-                out.add(mod)
-                out |= {f"{mod}.{a.name}" for a in node.names}
-            elif node.module:
-                out.add(node.module)
-                out |= {f"{node.module}.{a.name}" for a in node.names}
-    return out
+    """Absolute module names imported anywhere in a file (relative imports resolved in its package)."""
+    return set().union(*(_imports_of_node(n, path) for n in ast.walk(ast.parse(path.read_text(encoding="utf-8")))))
 
 
 def test_core_never_imports_builtin_plugins() -> None:
@@ -93,18 +77,16 @@ def test_core_modules_have_no_import_cycles() -> None:
 
 
 def _imports_of_node(node: ast.AST, path: Path) -> set[str]:
-    pkg = ["prep", *path.relative_to(CORE).parent.parts]
+    top, pkg = (CORE, "prep") if path.is_relative_to(CORE) else (PLUGINS, "prep_plugins")
+    parts = [pkg, *path.relative_to(top).parent.parts]
     out = set()
     if isinstance(node, ast.Import):
         out |= {a.name for a in node.names}
     elif isinstance(node, ast.ImportFrom):
-        if node.level:
-            base = pkg[: len(pkg) - node.level + 1]
-            mod = ".".join(base + ([node.module] if node.module else []))
-            out.add(mod)
-            out |= {f"{mod}.{a.name}" for a in node.names}
-        elif node.module:
-            out.add(node.module)
+        mod = ".".join(parts[: len(parts) - node.level + 1] + ([node.module] if node.module else [])) \
+            if node.level else node.module or ""
+        out.add(mod)
+        out |= {f"{mod}.{a.name}" for a in node.names}
     return out
 
 
