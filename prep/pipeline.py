@@ -285,7 +285,7 @@ def step_forward(registry: Registry, recipe: Recipe, inputs: SubjectInputs, alig
         for i, s in enumerate(conductor.layers):
             arrays[f"layer{i}_vertices"] = s.vertices
             arrays[f"layer{i}_faces"] = s.faces
-    meta = {"forward": state, "head_model": conductor.describe()}
+    meta = {"forward": state["forward"], "head_model": conductor.describe()}
     return StepResult(meta=meta, arrays=arrays, findings=findings)
 
 
