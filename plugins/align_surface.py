@@ -163,6 +163,8 @@ def align(sensors: Sensors, scalp: Surface, anatomy_fiducials: Mapping[str, np.n
         rot, t, _ = absolute_orientation(src, dst)
         init = rigid_matrix(rot, t)
         icp_kw.update(landmarks=src, landmark_targets=dst)
+        if len(points) < min_points:
+            return _fiducials_only(sensors, scalp, init, pre, pair, len(points), findings)
     else:
         if len(points) < min_points or _head_axes(fids) is None:
             raise too_few_points(f"{len(points)} surface point(s) and no nasion/LPA/RPA in both frames",
@@ -207,6 +209,24 @@ def align(sensors: Sensors, scalp: Surface, anatomy_fiducials: Mapping[str, np.n
     transform = Transform(matrix=matrix, from_frame=sensors.frame, to_frame=scalp.frame, method="surface-fit",
                           residuals={"rms_m": rms, "fre_m": fre})
     return Alignment(transform=transform, findings=tuple(findings), headshape_inliers=inliers_hs, metrics=metrics)
+
+
+def _fiducials_only(sensors: Sensors, scalp: Surface, init: np.ndarray, pre: np.ndarray, pair: tuple,
+                    n_points: int, findings: list[Finding]) -> Alignment:
+    """Too few surface points to fit: the fiducial alignment, said so."""
+    src, dst, names = pair
+    d = np.linalg.norm(src @ init[:3, :3].T + init[:3, 3] - dst, axis=1)
+    fre = float(np.sqrt(np.mean(d ** 2)))
+    findings = [*findings, Finding(
+        code="input.too-few-points", severity="warn", source=SOURCE,
+        message=f"only {n_points} head-shape point(s) and electrode(s): the surface fit was skipped and the "
+                "fiducials alone give the transform")]
+    transform = Transform(matrix=init @ pre, from_frame=sensors.frame, to_frame=scalp.frame, method="fiducials",
+                          residuals={"fre_m": fre})
+    return Alignment(transform=transform, findings=tuple(findings), headshape_inliers=None,
+                     metrics={"rms_m": None, "fre_m": fre, "fiducial_residuals_m": dict(zip(names, d.tolist())),
+                              "n_points": n_points, "start": "fiducials", "uncertainty": {},
+                              "mirrored": bool(pre[0, 0] < 0)})
 
 
 def _outlier_findings(inliers: np.ndarray, finite: np.ndarray, dist: np.ndarray, warn_fraction: float) -> list:

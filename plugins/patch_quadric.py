@@ -98,6 +98,7 @@ class _Prepared:
     """One surface, measured: faces kept, edge graph, area and findings."""
 
     keep: np.ndarray
+    face_piece: np.ndarray
     graph: object
     cross: np.ndarray
     area: float
@@ -117,7 +118,7 @@ def _prepare(s: Surface, name: str, islands: str) -> _Prepared:
     keep, fnd = _main_pieces(s, report.vertex_component, fa, name, islands)
     graph = vertex_adjacency(s.vertices, s.faces, unique_edges=report.edges.unique)
     area = float(fa[keep].sum())
-    return _Prepared(keep=keep, graph=graph, cross=cross[keep], area=area,
+    return _Prepared(keep=keep, face_piece=report.vertex_component[s.faces[keep][:, 0]], graph=graph, cross=cross[keep], area=area,
                      n_unreferenced=int((~referenced(len(s.vertices), s.faces)).sum()),
                      findings=tuple(found + fnd), flip=flip)
 
@@ -125,8 +126,14 @@ def _prepare(s: Surface, name: str, islands: str) -> _Prepared:
 def _partition(s: Surface, prep: _Prepared, target: int, *, refine: int) -> dict:
     """Seeds, membership along the surface, Lloyd steps and statistics for one surface."""
     v, f = s.vertices, s.faces[prep.keep]
-    seeds = decimation_seeds(v, f, int(target))
     weights = vertex_areas(v, f, cross=prep.cross)
+    # each piece (e.g. both hemispheres in one file) is decimated to its share of the target on its own
+    pieces, piece_of_face = np.unique(prep.face_piece, return_inverse=True)
+    piece_area = np.bincount(piece_of_face.reshape(-1), weights=0.5 * np.linalg.norm(prep.cross, axis=1),
+                             minlength=len(pieces))
+    shares = _allocate(piece_area, int(target)) if len(pieces) > 1 else [int(target)]
+    seeds = np.unique(np.concatenate([decimation_seeds(v, f[piece_of_face.reshape(-1) == i], int(n))
+                                      for i, n in enumerate(shares)]))
     patch, _ = assign_along_surface(v, f, seeds, graph=prep.graph)
     for _ in range(refine):
         seeds = recentre_seeds(v, patch, len(seeds), weights)

@@ -21,7 +21,7 @@ from .geometry import spheres as _spheres
 from .model import ForwardModel, VolumeConductor, _jsonable
 from .registry import Registry
 
-__all__ = ["fit_sphere", "sphere_conductor", "build_forward", "forward_state", "forward_from_state",
+__all__ = ["fit_sphere", "sphere_conductor", "build_forward", "forward_state", "forward_from_state", "forward_from_bundle",
            "outside_innermost", "DEFAULT_SHELLS"]
 
 #: Default shells by count: (radii as fractions of the outer radius, conductivities S/m), inside -> out.
@@ -219,3 +219,12 @@ def forward_from_state(registry: Registry, conductor: VolumeConductor, manifest:
     if not isinstance(fm, ForwardModel):
         raise BundleError(f"forward solver '{desc.name}' restored {type(fm).__name__}, not ForwardModel")
     return fm
+
+
+def forward_from_bundle(registry: Registry, bundle: Any) -> ForwardModel:
+    """The forward model stored in a loaded :class:`prep.bundle.Bundle`, evaluable at any dipole position.
+
+    Works for every head model: the bundle names the solver that built it, and
+    that solver restores it from the stored parameters and arrays.
+    """
+    return forward_from_state(registry, bundle.conductor(), bundle.manifest, bundle.arrays)

@@ -68,7 +68,7 @@ def decimation_seeds(vertices: FloatArray, faces: IntArray, n_target: int) -> In
     # the extension wants writable C arrays (our model arrays are read-only)
     pts, _ = fast_simplification.simplify(np.array(v, order="C"), np.array(f, order="C"), target_count=n_faces_target)
     pts = np.asarray(pts, dtype=np.float64)
-    # fast-simplification keeps unreferenced input points; only the decimated surface's vertices count
+    # snap the decimated vertices back onto vertices of the original surface
     tree = cKDTree(v[used])
     _, nearest = tree.query(pts, k=1)
     seeds = np.unique(used[nearest])
