@@ -174,9 +174,10 @@ def check_sensors(*, leadfield: LeadField, sensor_positions: np.ndarray, max_row
     iu, ju = np.triu_indices(m.shape[0], k=1)
     hit = corr[iu, ju] > max_row_correlation
     pairs_corr = [(int(i), int(j)) for i, j in zip(iu[hit], ju[hit])]
-    pairs_dist = sorted(cKDTree(pos).query_pairs(min_sensor_distance_m)) if len(pos) > 1 else []
+    tree = cKDTree(pos) if len(pos) > 1 else None
+    pairs_dist = sorted(tree.query_pairs(min_sensor_distance_m)) if tree is not None else []
     metrics = {"max_row_correlation": float(corr[iu, ju].max()) if iu.size else 0.0,
-               "min_sensor_distance": float(cKDTree(pos).query(pos, k=2)[0][:, 1].min()) if len(pos) > 1 else None,
+               "min_sensor_distance_m": float(tree.query(pos, k=2)[0][:, 1].min()) if tree is not None else None,
                "correlated_pairs": [[labels[i], labels[j]] for i, j in pairs_corr],
                "close_pairs": [[labels[i], labels[j]] for i, j in pairs_dist]}
     found = []
