@@ -133,6 +133,23 @@ def spheres(bundle: Bundle) -> tuple[np.ndarray, np.ndarray] | None:
     return np.asarray(hm["centre_m"], float), np.asarray(hm["radii_m"], float)
 
 
+#: passport arrays by meaning -> the names a bundle may store them under (the check's own first)
+PASSPORT_ARRAYS = {
+    "column_norm": ("passport_column_norm", "passport_column_norms"),
+    "depth": ("passport_source_depth",),
+    "ple": ("passport_peak_localisation_error", "passport_ple"),
+    "sd": ("passport_spatial_dispersion", "passport_sd"),
+}
+
+
+def passport_array(bundle: Bundle, meaning: str) -> np.ndarray | None:
+    """The passport array for ``meaning`` (see :data:`PASSPORT_ARRAYS`), or None."""
+    for name in PASSPORT_ARRAYS[meaning]:
+        if name in bundle.arrays:
+            return np.asarray(bundle.arrays[name], float)
+    return None
+
+
 def singular_values(bundle: Bundle) -> tuple[np.ndarray, str]:
     """Singular values of the lead field, largest first, and where they came from."""
     s = bundle.arrays.get("passport_singular_values")

@@ -24,7 +24,7 @@ PLANES = {
     "coronal": (1, 0, 2, ("left", "right"), ("inferior", "superior")),
     "axial": (2, 0, 1, ("left", "right"), ("posterior", "anterior")),
 }
-LAYER_COLOURS = ("#7a4e9c", "#4f7f3a", "#b5651d", "#2f6f8f", "#8f2f4f")
+LAYER_COLOURS = ("#7a4e9c", "#4f7f3a", "#b5651d", "#2f6f8f", "#8f2f4f", "#6b6b6b")
 SENSOR_SLAB_M = 0.012
 SOURCE_SLAB_M = 0.004
 
@@ -69,9 +69,10 @@ def cross_sections(assets: Assets, meshes: Sequence[Mesh], spheres: tuple[np.nda
                 if name not in seen:
                     seen.add(name)
                     handles.append(Line2D([], [], color=colour, lw=1.6, label=name))
+        first = 0 if spheres is None else len(spheres[1])  # meshes take the colours after the spheres'
         for i, mesh in enumerate(meshes):
             seg = _segments(mesh, n_ax, offset)
-            colour = LAYER_COLOURS[i % len(LAYER_COLOURS)]
+            colour = LAYER_COLOURS[(first + i) % len(LAYER_COLOURS)]
             if len(seg):
                 ax.add_collection(LineCollection(seg[:, :, [h_ax, v_ax]] * 1e3, colors=colour, linewidths=1.3))
             if mesh.role not in seen:
@@ -101,8 +102,8 @@ def cross_sections(assets: Assets, meshes: Sequence[Mesh], spheres: tuple[np.nda
                           label=f"sources within {SOURCE_SLAB_M * 1e3:.0f} mm"))
     fig.legend(handles=handles, loc="lower center", ncol=min(len(handles), 6), fontsize=9, frameon=False)
     fig.subplots_adjust(left=0.05, right=0.99, bottom=0.24, top=0.93, wspace=0.28)
-    names = [m.role.replace("_", " ") for m in meshes] or (
-        [f"{len(spheres[1])} concentric spheres"] if spheres is not None else [])
+    names = ([f"{len(spheres[1])} concentric spheres"] if spheres is not None else []) + [
+        m.role.replace("_", " ") for m in meshes]
     alt = (f"Three cross-sections through the head model ({', '.join(names)}): "
            f"{'; '.join(described)}. Electrodes are diamonds, sources small dots.")
     return assets.figure(fig, alt)
@@ -115,9 +116,11 @@ def spectrum(assets: Assets, s: np.ndarray, rank: int, cond: float, where: str) 
     rel = s / s[0]
     idx = np.arange(1, len(s) + 1)
     ax.semilogy(idx[:rank], rel[:rank], marker="o", ms=3, lw=1.2, color="#2f6f8f", label="within rank")
-    if rank < len(s):
-        ax.semilogy(idx[rank:], np.maximum(rel[rank:], 1e-18), marker="x", ms=4, lw=0, color="#9b2f25",
-                    label="below numerical rank")
+    floor = max(float(rel[rank - 1]) / 10.0, 1e-18)
+    if rank < len(s):  # the null direction(s), e.g. of the reference, drawn at the floor: off scale
+        ax.semilogy(idx[rank:], np.full(len(s) - rank, floor), marker="v", ms=5, lw=0, color="#9b2f25",
+                    label=f"below numerical rank ({len(s) - rank}, off scale)")
+    ax.set_ylim(floor / 1.5, 1.5)
     ax.yaxis.set_minor_locator(NullLocator())
     fig.subplots_adjust(left=0.15, right=0.97, bottom=0.14, top=0.9)
     ax.set_xlabel("component")
@@ -131,12 +134,15 @@ def spectrum(assets: Assets, s: np.ndarray, rank: int, cond: float, where: str) 
     return assets.figure(fig, alt)
 
 
-def depth_profile(assets: Assets, depth: np.ndarray, norms: np.ndarray) -> str:
-    """Column norm against source depth (log scale), with decile medians."""
+def depth_profile(assets: Assets, depth: np.ndarray, norms: np.ndarray, measure: str = "") -> str:
+    """Column norm against source depth (log scale when it spans decades), with decile medians.
+
+    ``measure`` names how the passport measured depth (e.g. ``nearest-sensor``).
+    """
     fig = render.figure(figsize=(5.6, 3.6))
     ax = fig.subplots()
     d = depth * 1e3
-    ax.scatter(d, norms, s=5, c="#2f6f8f", alpha=0.45, lw=0)
+    ax.scatter(d, norms, s=9, c="#2f6f8f", alpha=0.5, lw=0)
     edges = np.unique(np.percentile(d, np.linspace(0, 100, 11)))
     centres, med = [], []
     for lo, hi in zip(edges[:-1], edges[1:]):
@@ -148,8 +154,8 @@ def depth_profile(assets: Assets, depth: np.ndarray, norms: np.ndarray) -> str:
     if np.all(norms > 0) and norms.max() > 20 * norms.min():
         ax.set_yscale("log")
         ax.yaxis.set_minor_locator(NullLocator())
-    fig.subplots_adjust(left=0.15, right=0.97, bottom=0.14, top=0.9)
-    ax.set_xlabel("source depth (mm)")
+    fig.subplots_adjust(left=0.19, right=0.97, bottom=0.14, top=0.9)
+    ax.set_xlabel(f"source depth (mm{', ' + measure.replace('-', ' ') if measure else ''})")
     ax.set_ylabel("lead-field column norm, V/(A*m)")
     ax.set_title("depth profile", fontsize=11)
     ax.grid(True, which="both", color="#eeeeee", lw=0.6)

@@ -64,10 +64,12 @@ def _start(p) -> None:  # noqa: ANN001
 
 
 def electrode_views(assets: Assets, scalp: Mesh | None, el: Electrodes, limit_mm: float,
-                    views: Sequence[str] = ("front", "left", "right", "top")) -> list[str]:
+                    views: Sequence[str] = ("front", "left", "right", "top"),
+                    headshape: np.ndarray | None = None) -> list[str]:
     """One ``<figure>`` per view: the scalp with electrodes coloured by signed distance (mm).
 
     Flagged electrodes are labelled by name. ``limit_mm`` is the symmetric colour limit.
+    ``headshape`` (h, 3) metres, if given, is drawn as small dark points.
     """
     import pyvista as pv
 
@@ -80,6 +82,9 @@ def electrode_views(assets: Assets, scalp: Mesh | None, el: Electrodes, limit_mm
     else:
         centre = pts.mean(axis=0)
         radius = float(np.ptp(pts, axis=0).max()) / 2.0 or 100.0
+    if headshape is not None and len(headshape):
+        p.add_mesh(pv.PolyData(np.asarray(headshape) * 1e3), color="#4a4a4a", point_size=3,
+                   render_points_as_spheres=True)
     dot = pv.Sphere(radius=max(radius * 0.035, 2.0), theta_resolution=12, phi_resolution=12)
     cloud = pv.PolyData(pts)
     if el.signed_distance is not None:
@@ -100,6 +105,8 @@ def electrode_views(assets: Assets, scalp: Mesh | None, el: Electrodes, limit_mm
         f"{el.signed_distance.max() * 1e3:.1f} mm)")
     named = ", ".join(el.labels[i] for i in flagged)
     flag_text = f"; flagged and labelled: {named}" if flagged else "; no electrode is flagged"
+    if headshape is not None and len(headshape):
+        flag_text += f"; {len(headshape)} head-shape points as small dark dots"
     what = "Scalp" if scalp is not None else "Head"
     try:
         _start(p)

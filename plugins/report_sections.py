@@ -56,7 +56,7 @@ def render_electrodes(bundle: Bundle, assets: Assets) -> str:
     else:
         parts.append(f"<p>Colour: signed distance to the skin in mm, blue inside, green on the skin, "
                      f"orange to red outside (scale \u00b1{lim:.0f} mm). Flagged electrodes are named.</p>")
-    parts.append(_gallery(electrode_views(assets, scalp, el, lim)))
+    parts.append(_gallery(electrode_views(assets, scalp, el, lim, headshape=bundle.arrays.get("headshape_points"))))
     if sd is not None:
         worst = int(np.argmax(np.abs(sd)))
         parts.append(f"<p>Median distance to the skin {np.median(sd) * 1e3:.1f} mm; largest "
@@ -177,13 +177,14 @@ def render_passport(bundle: Bundle, assets: Assets) -> str:
              f'</span>, numerical rank <span id="lf-rank">{rank}</span>, condition number '
              f'<span id="lf-cond" data-value="{cond!r}">{cond:.4g}</span> ({esc(how)}).</p>',
              plots.spectrum(assets, s, max(rank, 1), cond, where)]
-    depth, norms = a.get("passport_source_depth"), a.get("passport_column_norms")
+    depth, norms = data.passport_array(bundle, "depth"), data.passport_array(bundle, "column_norm")
     if depth is not None and norms is not None and len(depth) == len(norms):
-        parts.append(plots.depth_profile(assets, np.asarray(depth, float), np.asarray(norms, float)))
+        measure = data.find_metric(bundle.manifest.get("passport") or {}, "depth_measure")
+        parts.append(plots.depth_profile(assets, depth, norms, measure=str(measure[1]) if measure else ""))
     else:
         parts.append(absent("The passport stored no source depths with column norms, so no depth profile "
                             "is drawn."))
-    ple, sd = a.get("passport_ple"), a.get("passport_sd")
+    ple, sd = data.passport_array(bundle, "ple"), data.passport_array(bundle, "sd")
     if ple is not None or sd is not None:
         parts.append(plots.resolution(assets, ple, sd))
     else:
@@ -221,6 +222,8 @@ def render_provenance(bundle: Bundle, assets: Assets) -> str:
     man = bundle.manifest
     kit = man.get("kit", {})
     fwd = man.get("forward") or {}
+    if "solver" not in fwd and isinstance(fwd.get("forward"), dict):  # the state nested one level down
+        fwd = fwd["forward"]
     facts: list[tuple[str, Any]] = [
         ("kit", f"{kit.get('name', '?')} {kit.get('version', '?')}"),
         ("bundle format", f"{man.get('format')} schema {man.get('schema_version')}"),

@@ -25,7 +25,7 @@ from typing import Any
 import numpy as np
 
 from .atomic import write_text_atomic
-from .bundle import Bundle
+from .bundle import Bundle, load_bundle
 from .errors import UsageError
 from .model import Finding
 
@@ -263,9 +263,24 @@ def build_report(bundle: Bundle, registry: Any) -> str:
             f'is fetched from a network.</footer></main></body></html>\n')
 
 
-def write_report(bundle: Bundle, registry: Any, out: str | os.PathLike[str], *, force: bool = False) -> Path:
-    """Build the page and write it atomically to ``out`` (refused if it exists, unless ``force``)."""
+def write_report(bundle: Bundle | str | os.PathLike[str], registry: Any, out: str | os.PathLike[str], *,
+                 force: bool = False) -> Path:
+    """Build the page and write it atomically to ``out`` (refused if it exists, unless ``force``).
+
+    Parameters
+    ----------
+    bundle : Bundle or path
+        A loaded bundle, or a bundle's path (loaded and verified here:
+        :class:`~prep.errors.BundleError` if damaged, and nothing is written).
+    registry : Registry
+    out : path
+        The HTML file.
+    force : bool
+        Replace ``out`` if it exists.
+    """
     path = Path(out)
+    if not isinstance(bundle, Bundle):
+        bundle = load_bundle(bundle)
     if path.is_dir():
         raise UsageError(f"{path}: is a directory; give a file name such as report.html")
     if path.exists() and not force:

@@ -39,7 +39,7 @@ def find_chromium() -> str | None:
 class WebSocket:
     """Just enough of a WebSocket client for the DevTools protocol."""
 
-    def __init__(self, url: str, timeout: float = 30.0) -> None:
+    def __init__(self, url: str, timeout: float = 120.0) -> None:
         assert url.startswith("ws://127.0.0.1:"), url
         hostport, _, path = url[len("ws://"):].partition("/")
         host, port = hostport.split(":")
@@ -121,7 +121,7 @@ class Browser:
              "--remote-debugging-port=0", f"--window-size={size[0]},{size[1]}", "about:blank"],
             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, stdin=subprocess.DEVNULL)
         port_file = profile / "DevToolsActivePort"
-        deadline = time.monotonic() + 30
+        deadline = time.monotonic() + 120
         while not (port_file.is_file() and port_file.read_text().count("\n") >= 1):
             if self.proc.poll() is not None or time.monotonic() > deadline:
                 self.close()
@@ -168,7 +168,7 @@ class Browser:
             if "method" in msg:
                 self.events.append(msg)
 
-    def wait_for(self, event: str, timeout: float = 30.0) -> dict[str, Any]:
+    def wait_for(self, event: str, timeout: float = 120.0) -> dict[str, Any]:
         """Wait for an event (or return it if it already came)."""
         for e in self.events:
             if e["method"] == event:
@@ -180,3 +180,27 @@ class Browser:
                 self.events.append(msg)
                 if msg["method"] == event:
                     return msg
+
+
+IMAGES_JS = """JSON.stringify(Array.from(document.images).map(i => ({
+  scheme: i.src.split(':')[0], complete: i.complete, w: i.naturalWidth, h: i.naturalHeight, alt: i.alt})))"""
+
+
+def open_page(executable: str, page: Path, profile: Path) -> tuple[list[dict], list[dict], Any]:
+    """Load ``page`` from disk at 1200 x 900; return (images, DevTools events, screenshot RGB array)."""
+    import io
+
+    import numpy as np
+    from matplotlib import image as mpimg
+
+    with Browser(executable, profile) as b:
+        for domain in ("Page", "Runtime", "Log", "Network"):
+            b.call(f"{domain}.enable")
+        b.call("Emulation.setDeviceMetricsOverride", width=1200, height=900, deviceScaleFactor=1, mobile=False)
+        b.call("Page.navigate", url=page.resolve().as_uri())
+        b.wait_for("Page.loadEventFired")
+        images = json.loads(b.call("Runtime.evaluate", expression=IMAGES_JS, returnByValue=True)["result"]["value"])
+        shot = b.call("Page.captureScreenshot", format="png")["data"]
+        events = list(b.events)
+    pixels = mpimg.imread(io.BytesIO(base64.b64decode(shot)), format="png")
+    return images, events, np.asarray(pixels)[..., :3]

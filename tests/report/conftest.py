@@ -82,6 +82,7 @@ def make_synthetic_bundle(path: Path, *, seed: int = 7, n_sensors: int = 32, n_p
     if scalp:
         arrays["scalp_vertices"], arrays["scalp_faces"] = sv, sf
     if placement:
+        arrays["headshape_points"] = sv[sv[:, 2] > -0.02][::9] * 1.002
         arrays["sensor_digitized"] = pos + normal * dist[:, None]
         arrays["placement_signed_distance"] = dist
     cx = _cortex(rng, n_patches)
@@ -97,9 +98,9 @@ def make_synthetic_bundle(path: Path, *, seed: int = 7, n_sensors: int = 32, n_p
     cond = float(s[0] / s[n_sensors - 2])
     if passport:
         depth = 0.09 - np.linalg.norm(cx["source_positions"], axis=1)
-        arrays.update(passport_singular_values=s, passport_column_norms=np.linalg.norm(lf, axis=0),
-                      passport_source_depth=depth, passport_ple=rng.uniform(0.0, 0.03, m),
-                      passport_sd=rng.uniform(0.005, 0.04, m))
+        arrays.update(passport_singular_values=s, passport_column_norm=np.linalg.norm(lf, axis=0),
+                      passport_source_depth=depth, passport_peak_localisation_error=rng.uniform(0.0, 0.03, m),
+                      passport_spatial_dispersion=rng.uniform(0.005, 0.04, m))
     if spheres:
         head_model = {"kind": "spheres", "conductivities_S_per_m": [0.33, 0.0042, 0.33],
                       "centre_m": [0.0, 0.0, 0.0], "radii_m": [0.068, 0.075, 0.085], "frame": "anatomy"}
@@ -136,7 +137,8 @@ def make_synthetic_bundle(path: Path, *, seed: int = 7, n_sensors: int = 32, n_p
         "transform": {"matrix": np.eye(4).tolist(), "from": "head", "to": "anatomy", "method": "surface-fit",
                       "residuals": {"rms_m": 0.0011}},
         "alignment": {"method": "surface-fit", "metrics": {"rms_m": 0.0011}},
-        "passport": {"leadfield_conditioning": {"condition_number": cond, "rank": n_sensors - 1}} if passport else {},
+        "passport": {"leadfield-spectrum": {"condition_number": cond, "numerical_rank": n_sensors - 1}}
+        if passport else {},
     }
     if head_model is not None:
         manifest["head_model"] = head_model

@@ -6,15 +6,12 @@ executable can be found (CI installs Debian's ``chromium``).
 """
 from __future__ import annotations
 
-import base64
-import io
-import json
 from pathlib import Path
 
 import numpy as np
 import pytest
 
-from _chromium import Browser, find_chromium
+from _chromium import find_chromium, open_page
 
 pytestmark = pytest.mark.browser
 
@@ -23,30 +20,9 @@ needs_chromium = pytest.mark.skipif(
     CHROMIUM is None, reason="no Chromium executable found (install Debian's 'chromium' package, "
                              "or set HEADPREP_CHROMIUM)")
 
-IMAGES_JS = """JSON.stringify(Array.from(document.images).map(i => ({
-  scheme: i.src.split(':')[0], complete: i.complete, w: i.naturalWidth, h: i.naturalHeight, alt: i.alt})))"""
-
-
-def _open(report: Path, profile: Path) -> tuple[list[dict], list[dict], np.ndarray]:
-    """Load ``report``; return (images, events, screenshot RGB array)."""
-    from matplotlib import image as mpimg
-
-    with Browser(CHROMIUM, profile) as b:
-        for domain in ("Page", "Runtime", "Log", "Network"):
-            b.call(f"{domain}.enable")
-        b.call("Emulation.setDeviceMetricsOverride", width=1200, height=900, deviceScaleFactor=1, mobile=False)
-        b.call("Page.navigate", url=report.resolve().as_uri())
-        b.wait_for("Page.loadEventFired")
-        images = json.loads(b.call("Runtime.evaluate", expression=IMAGES_JS, returnByValue=True)["result"]["value"])
-        shot = b.call("Page.captureScreenshot", format="png")["data"]
-        events = list(b.events)
-    pixels = mpimg.imread(io.BytesIO(base64.b64decode(shot)), format="png")
-    return images, events, np.asarray(pixels)[..., :3]
-
-
 @needs_chromium
 def test_report_in_chromium(report_page: Path, tmp_path: Path) -> None:
-    images, events, pixels = _open(report_page, tmp_path / "profile")
+    images, events, pixels = open_page(CHROMIUM, report_page, tmp_path / "profile")
     # every picture is inline and decodes, with alt text
     assert len(images) >= 10
     for im in images:
@@ -73,7 +49,7 @@ def test_report_in_chromium(report_page: Path, tmp_path: Path) -> None:
 @needs_chromium
 def test_degraded_report_in_chromium(sparse_page: Path, tmp_path: Path) -> None:
     """A bundle without layers, cortex, placement or passport still opens cleanly."""
-    images, events, pixels = _open(sparse_page, tmp_path / "profile")
+    images, events, pixels = open_page(CHROMIUM, sparse_page, tmp_path / "profile")
     assert all(im["w"] > 0 and im["alt"].strip() for im in images)
     assert not [e for e in events if e["method"] == "Runtime.exceptionThrown"]
     assert float(pixels.var()) > 1e-3
