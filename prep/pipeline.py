@@ -235,17 +235,17 @@ def _conductor(registry: Registry, recipe: Recipe, inputs: SubjectInputs, sensor
         cond = fwd.sphere_conductor(sensor_positions, centre=centre, radii=radii, conductivities=sigma)
         return cond, findings
     if model == "bem":
-        from .layers import check_layers, derive_layers
+        from .layers import check_layers, derive_head
 
-        inner, outer = inputs.inner_skull, inputs.outer_skull
-        if inner is None or outer is None:
-            outer_d, inner_d = derive_layers(inputs.scalp)
-            outer = outer or outer_d
-            inner = inner or inner_d
-            findings.append(Finding(code="layers.derived", severity="info",
-                                    message="skull layers were derived from the scalp by inward offsets",
-                                    source="pipeline"))
-        layers = (inner, outer, inputs.scalp)
+        if inputs.inner_skull is None:
+            # template-style preparation: remesh the scalp and offset the skull layers inward
+            layers, derived = derive_head(inputs.scalp, outer_skull=inputs.outer_skull)
+            findings += derived
+        else:
+            if inputs.outer_skull is None:
+                raise UsageError(f"{recipe.where('inputs')}: an inner skull without an outer skull; give both "
+                                 f"or neither (then both are derived from the scalp)")
+            layers = (inputs.inner_skull, inputs.outer_skull, inputs.scalp)
         findings += check_layers(registry, layers)
         sigma = hm.get("conductivities")
         if sigma is None:
