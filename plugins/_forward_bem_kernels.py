@@ -25,7 +25,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 import scipy.sparse as sp
 
-from prep.geometry.layers import face_normals
+from prep.geometry.meshstats import edge_counts, face_areas, face_cross, face_normals
 
 FOUR_PI = 4.0 * np.pi
 
@@ -67,7 +67,9 @@ class LinearDoubleLayer:
         self.vsq = np.einsum("ij,ij->i", v, v)
         self.faces = f
         x = [v[f[:, c]] for c in range(3)]
-        n, area = face_normals(v, f)
+        cross = face_cross(v, f)
+        n, _ = face_normals(v, f, cross=cross)
+        area = face_areas(v, f, cross=cross)
         # matrices applied to r: columns [2A n | n | g_0 | g_1 | g_2], one (3, 5k) product per block
         inv2a = np.divide(1.0, 2.0 * area, out=np.zeros_like(area), where=area > 0)
         g = [np.cross(n, x[(c + 2) % 3] - x[(c + 1) % 3]) * inv2a[:, None] for c in range(3)]
@@ -76,11 +78,10 @@ class LinearDoubleLayer:
         self.hn = np.einsum("ij,ij->i", n, x[0])
         self.one_minus_gx = [1.0 - np.einsum("ij,ij->i", g[c], x[c]) for c in range(3)]
         # unique edges; the line integral of 1/|x - r| does not depend on direction
-        half = np.concatenate([f[:, [0, 1]], f[:, [1, 2]], f[:, [2, 0]]])
-        key = np.sort(half, axis=1)
-        edges, inverse = np.unique(key, axis=0, return_inverse=True)
+        ec = edge_counts(f)
+        edges = ec.unique
         self.edges = edges
-        self.face_edge = inverse.reshape(3, -1)  # (3, k): edge index of face edge e (corner e -> e+1)
+        self.face_edge = ec.inverse.reshape(-1, 3).T  # (3, k): edge index of face edge e (corner e -> e+1)
         d = v[edges[:, 1]] - v[edges[:, 0]]
         self.elen = np.linalg.norm(d, axis=1)
         t = d / np.maximum(self.elen, 1e-300)[:, None]

@@ -9,6 +9,7 @@ import numpy as np
 
 from .._typing import BoolArray, FloatArray, IntArray
 from ..model import Finding
+from .surface import closest_points
 
 __all__ = ["DEFAULT_MIN_DISTANCE_MM", "surface_clearance", "clearance_findings"]
 
@@ -33,7 +34,8 @@ def surface_clearance(points: FloatArray, vertices: FloatArray, faces: IntArray)
         By ray parity (trimesh ``contains``; fast with embreex, LIBRARIES.md).
     distance : (m,) float64, metres
         To the closest point of the surface (not to its vertices: a vertex
-        KD-tree overestimates by ~0.6 mm on a 20k-face mesh, LIBRARIES.md).
+        KD-tree overestimates by ~0.6 mm on a 20k-face mesh, LIBRARIES.md),
+        by :func:`prep.geometry.surface.closest_points`.
     """
     import trimesh
 
@@ -41,8 +43,8 @@ def surface_clearance(points: FloatArray, vertices: FloatArray, faces: IntArray)
     if len(p) == 0:
         return np.zeros(0, bool), np.zeros(0)
     mesh = trimesh.Trimesh(np.asarray(vertices, dtype=np.float64), np.asarray(faces, dtype=np.int64), process=False)
-    _, dist, _ = trimesh.proximity.closest_point(mesh, p)
-    return np.asarray(mesh.contains(p), dtype=bool), np.asarray(dist, dtype=np.float64)
+    dist = np.abs(closest_points(mesh.vertices, mesh.faces, p)[1])
+    return np.asarray(mesh.contains(p), dtype=bool), dist
 
 
 def clearance_findings(inside: BoolArray, distance: FloatArray, *, min_distance_mm: float, excluded: bool,

@@ -11,8 +11,14 @@ from __future__ import annotations
 
 import numpy as np
 
+from .meshstats import edge_counts, face_normals, is_closed, signed_volume, tetra_volumes, vertex_normals
+from .surface import closest_points
+
+# Face and vertex normals, volumes and edge counts live in :mod:`prep.geometry.meshstats`,
+# distances to a mesh in :mod:`prep.geometry.surface`; ``signed_volume`` and ``is_closed``
+# stay importable from here for existing callers.
 __all__ = [
-    "icosphere", "face_normals", "vertex_normals", "signed_volume", "solid_angle_sum",
+    "icosphere", "signed_volume", "solid_angle_sum",
     "inside", "star_shaped", "ray_radii", "remesh_radial", "offset_inward", "nearest_distance",
     "nesting", "interior_centre", "edge_use_counts", "is_closed", "orient_outward", "derive_inward",
     "triangle_solid_angles", "icosphere_subdivisions",
@@ -55,35 +61,6 @@ def icosphere_subdivisions(n_vertices: int) -> int:
     """Subdivision level whose icosphere has the vertex count closest to ``n_vertices``."""
     levels = np.arange(8)
     return int(levels[np.argmin(np.abs(10 * 4 ** levels + 2 - int(n_vertices)))])
-
-
-def face_normals(vertices: np.ndarray, faces: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Unit face normals (k, 3) and face areas (k,) m^2; zero-area faces get a zero normal."""
-    v = np.asarray(vertices, dtype=float)
-    t = v[np.asarray(faces)]
-    cross = np.cross(t[:, 1] - t[:, 0], t[:, 2] - t[:, 0])
-    twice = np.linalg.norm(cross, axis=1)
-    unit = np.divide(cross, twice[:, None], out=np.zeros_like(cross), where=twice[:, None] > 0)
-    return unit, 0.5 * twice
-
-
-def vertex_normals(vertices: np.ndarray, faces: np.ndarray) -> np.ndarray:
-    """Area-weighted unit vertex normals (n, 3)."""
-    v = np.asarray(vertices, dtype=float)
-    f = np.asarray(faces)
-    t = v[f]
-    cross = np.cross(t[:, 1] - t[:, 0], t[:, 2] - t[:, 0])
-    acc = np.zeros_like(v)
-    for k in range(3):
-        np.add.at(acc, f[:, k], cross)
-    norm = np.linalg.norm(acc, axis=1, keepdims=True)
-    return np.divide(acc, norm, out=np.zeros_like(acc), where=norm > 0)
-
-
-def signed_volume(vertices: np.ndarray, faces: np.ndarray) -> float:
-    """Enclosed volume, m^3; negative when the faces are oriented inward."""
-    t = np.asarray(vertices, dtype=float)[np.asarray(faces)]
-    return float(np.einsum("ij,ij->i", t[:, 0], np.cross(t[:, 1], t[:, 2])).sum() / 6.0)
 
 
 def solid_angle_sum(points: np.ndarray, vertices: np.ndarray, faces: np.ndarray,
@@ -143,7 +120,7 @@ def inside(points: np.ndarray, vertices: np.ndarray, faces: np.ndarray) -> np.nd
 def interior_centre(vertices: np.ndarray, faces: np.ndarray) -> np.ndarray:
     """(3,) volume centroid of a closed mesh, metres (a natural ray centre)."""
     t = np.asarray(vertices, dtype=float)[np.asarray(faces)]
-    vol = np.einsum("ij,ij->i", t[:, 0], np.cross(t[:, 1], t[:, 2])) / 6.0
+    vol = tetra_volumes(vertices, faces)
     if abs(vol.sum()) < 1e-30:
         return np.asarray(vertices, dtype=float).mean(axis=0)
     return (vol[:, None] * t.sum(axis=1) / 4.0).sum(axis=0) / vol.sum()
@@ -158,10 +135,10 @@ def star_shaped(vertices: np.ndarray, faces: np.ndarray, centre: np.ndarray,
     ok : bool
     bad_faces : (j,) int64 indices of faces seen edge-on or from behind.
     """
-    normal, area = face_normals(vertices, faces)
+    normal, valid = face_normals(vertices, faces)
     t = np.asarray(vertices, dtype=float)[np.asarray(faces)]
     h = np.einsum("ij,ij->i", normal, t.mean(axis=1) - np.asarray(centre, dtype=float))
-    bad = np.flatnonzero((h <= tol) & (area > 0))
+    bad = np.flatnonzero((h <= tol) & valid)
     return bad.size == 0, bad
 
 
@@ -241,18 +218,17 @@ def offset_inward(vertices: np.ndarray, faces: np.ndarray, distance: float,
     faces are unchanged. Check the result with :func:`nesting`.
     """
     v = np.asarray(vertices, dtype=float)
-    nrm = _smooth(vertex_normals(v, faces), faces, len(v), smoothing)
+    nrm = _smooth(vertex_normals(v, faces)[0], faces, len(v), smoothing)
     nrm /= np.maximum(np.linalg.norm(nrm, axis=1, keepdims=True), 1e-30)
     return v - float(distance) * nrm
 
 
 def nearest_distance(points: np.ndarray, vertices: np.ndarray, faces: np.ndarray) -> np.ndarray:
-    """Unsigned distance (m,) metres from each point to the closest point of a triangle mesh."""
-    import trimesh
+    """Unsigned distance (m,) metres from each point to the closest point of a triangle mesh.
 
-    mesh = trimesh.Trimesh(np.asarray(vertices, dtype=float), np.asarray(faces), process=False)
-    _, dist, _ = trimesh.proximity.closest_point(mesh, np.asarray(points, dtype=float))
-    return np.asarray(dist, dtype=float)
+    The exact closest points of :func:`prep.geometry.surface.closest_points`.
+    """
+    return np.abs(closest_points(vertices, faces, points)[1])
 
 
 def nesting(inner_vertices: np.ndarray, inner_faces: np.ndarray,
@@ -277,17 +253,11 @@ def nesting(inner_vertices: np.ndarray, inner_faces: np.ndarray,
 
 
 def edge_use_counts(faces: np.ndarray) -> np.ndarray:
-    """(e,) how many faces use each undirected edge; a closed 2-manifold has all counts 2."""
-    f = np.asarray(faces)
-    e = np.sort(np.concatenate([f[:, [0, 1]], f[:, [1, 2]], f[:, [2, 0]]]), axis=1)
-    _, counts = np.unique(e, axis=0, return_counts=True)
-    return counts
+    """(e,) how many faces use each undirected edge (sorted vertex pairs); a closed 2-manifold has all counts 2.
 
-
-def is_closed(faces: np.ndarray) -> bool:
-    """True if every edge is shared by exactly two faces."""
-    f = np.asarray(faces)
-    return bool(len(f) and np.all(edge_use_counts(f) == 2))
+    The ``count`` of :func:`prep.geometry.meshstats.edge_counts`.
+    """
+    return edge_counts(faces).count
 
 
 def orient_outward(vertices: np.ndarray, faces: np.ndarray) -> tuple[np.ndarray, bool]:

@@ -19,18 +19,12 @@ from scipy.spatial import cKDTree
 
 from .._typing import BoolArray, FloatArray, IntArray
 from ..model import Finding, Surface
-from .meshstats import (EdgeCounts, components, degenerate_faces, edge_counts, face_areas, face_cross,
-                        mean_edge_length, referenced)
+from .meshstats import (EdgeCounts, components, degenerate_faces, edge_counts, euler_characteristic, face_areas,
+                        face_cross, is_closed, mean_edge_length, referenced, signed_volume)
 
+# ``signed_volume`` lives in meshstats; it stays importable from here for existing callers.
 __all__ = ["MeshReport", "inspect_mesh", "mesh_findings", "repair_surface", "self_intersecting_faces",
            "signed_volume"]
-
-
-def signed_volume(vertices: FloatArray, faces: IntArray) -> float:
-    """Enclosed volume (m^3) by the divergence theorem: positive for an outward-wound closed surface."""
-    v = np.asarray(vertices, dtype=np.float64)
-    f = np.asarray(faces, dtype=np.int64)
-    return float(np.einsum("ij,ij->i", v[f[:, 0]], np.cross(v[f[:, 1]], v[f[:, 2]])).sum() / 6.0)
 
 
 def self_intersecting_faces(vertices: FloatArray, faces: IntArray) -> BoolArray:
@@ -164,7 +158,7 @@ def inspect_mesh(vertices: FloatArray, faces: IntArray, *, self_intersection: bo
         degenerate=degenerate_faces(v, f, cross=cross) if len(f) else np.zeros(0, bool),
         self_intersecting=self_intersecting_faces(v, f) if self_intersection else None,
         n_components=int(len(comp_area)), component_areas=comp_area,
-        euler=int(len(used) - len(ec.unique) + len(f)), volume=signed_volume(v, f) if len(f) else 0.0,
+        euler=euler_characteristic(len(used), f, edges=ec), volume=signed_volume(v, f) if len(f) else 0.0,
         area=float(fa.sum()))
 
 
@@ -278,7 +272,7 @@ def repair_surface(surface: Surface, *, merge_tol_rel: float = 1e-6) -> tuple[Su
         note(f"dropped {int(repeated.sum())} triangles repeating a vertex and {int((dup & ~repeated).sum())} "
              "repeated triangles", dropped_faces=int(drop.sum()))
     ec = edge_counts(f)
-    closed_inward = (not ec.same_direction.any() and (ec.count == 2).all() and signed_volume(v, f) < 0)
+    closed_inward = not ec.same_direction.any() and is_closed(f, edges=ec) and signed_volume(v, f) < 0
     if ec.same_direction.any() or closed_inward:
         mesh = trimesh.Trimesh(np.array(v), np.array(f), process=False)  # writable copies
         trimesh.repair.fix_normals(mesh, multibody=True)

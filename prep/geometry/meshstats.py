@@ -24,7 +24,8 @@ from .._typing import BoolArray, FloatArray, IntArray
 __all__ = [
     "face_cross", "face_areas", "face_normals", "vertex_areas", "vertex_normals", "surface_area",
     "edges", "EdgeCounts", "edge_counts", "euler_characteristic", "degenerate_faces",
-    "vertex_adjacency", "components", "mean_edge_length", "referenced",
+    "vertex_adjacency", "components", "mean_edge_length", "referenced", "accumulate_rows",
+    "tetra_volumes", "signed_volume", "is_closed",
 ]
 
 
@@ -48,17 +49,30 @@ def face_areas(vertices: FloatArray, faces: IntArray, *, cross: FloatArray | Non
     return 0.5 * np.sqrt(np.einsum("ij,ij->i", c, c))
 
 
-def face_normals(vertices: FloatArray, faces: IntArray) -> tuple[FloatArray, BoolArray]:
+def face_normals(vertices: FloatArray, faces: IntArray, *, cross: FloatArray | None = None,
+                 floor: float = 0.0) -> tuple[FloatArray, BoolArray]:
     """Unit face normals (k, 3) float64 and a (k,) bool ``valid`` mask.
 
-    Faces of zero area (``valid`` false) get a zero normal.
+    Faces whose cross product is no longer than ``floor`` (twice the area, m^2;
+    default 0: only exactly flat faces) are invalid and get a zero normal.
+    ``cross``: :func:`face_cross` if already computed.
     """
-    c = face_cross(vertices, faces)
+    c = face_cross(vertices, faces) if cross is None else np.asarray(cross, dtype=np.float64)
     norm = np.linalg.norm(c, axis=1)
-    valid = norm > 0
+    valid = norm > floor
     out = np.zeros_like(c)
     out[valid] = c[valid] / norm[valid, None]
     return out, valid
+
+
+def accumulate_rows(index: IntArray, values: FloatArray, size: int) -> FloatArray:
+    """Sum the rows of ``values`` (k, d) into ``size`` bins by ``index`` (k,): (size, d) float64.
+
+    One ``np.bincount`` per column: several times faster than ``np.add.at``.
+    """
+    vals = np.asarray(values, dtype=np.float64)
+    idx = np.asarray(index, dtype=np.int64)
+    return np.stack([np.bincount(idx, weights=vals[:, j], minlength=size) for j in range(vals.shape[1])], axis=1)
 
 
 def vertex_areas(vertices: FloatArray, faces: IntArray, *, cross: FloatArray | None = None) -> FloatArray:
@@ -84,8 +98,7 @@ def vertex_normals(vertices: FloatArray, faces: IntArray, *,
     n = len(vertices)
     f = np.asarray(faces, dtype=np.int64)
     c = face_cross(vertices, f) if cross is None else np.asarray(cross)
-    idx = f.ravel()
-    acc = np.stack([np.bincount(idx, weights=np.repeat(c[:, j], 3), minlength=n) for j in range(3)], axis=1)
+    acc = accumulate_rows(f.ravel(), np.repeat(c, 3, axis=0), n)
     norm = np.linalg.norm(acc, axis=1)
     valid = norm > 0
     acc[valid] /= norm[valid, None]
@@ -96,6 +109,26 @@ def vertex_normals(vertices: FloatArray, faces: IntArray, *,
 def surface_area(vertices: FloatArray, faces: IntArray) -> float:
     """Total area, m^2."""
     return float(face_areas(vertices, faces).sum())
+
+
+def tetra_volumes(vertices: FloatArray, faces: IntArray) -> FloatArray:
+    """(k,) float64 signed volumes (m^3) of the tetrahedra joining the origin to each face.
+
+    Their sum is the enclosed volume (divergence theorem); see :func:`signed_volume`.
+    """
+    return _triple_products(vertices, faces) / 6.0
+
+
+def signed_volume(vertices: FloatArray, faces: IntArray) -> float:
+    """Enclosed volume (m^3) by the divergence theorem: positive for an outward-wound closed surface."""
+    return float(_triple_products(vertices, faces).sum() / 6.0)
+
+
+def _triple_products(vertices: FloatArray, faces: IntArray) -> FloatArray:
+    """(k,) ``a . (b x c)`` over the corners of each face, m^3."""
+    v = np.asarray(vertices, dtype=np.float64)
+    f = np.asarray(faces, dtype=np.int64)
+    return np.einsum("ij,ij->i", v[f[:, 0]], np.cross(v[f[:, 1]], v[f[:, 2]]))
 
 
 def edges(faces: IntArray) -> IntArray:
@@ -145,9 +178,21 @@ def edge_counts(faces: IntArray) -> EdgeCounts:
     return EdgeCounts(unique, count.astype(np.int64), same, inverse)
 
 
-def euler_characteristic(n_vertices_used: int, faces: IntArray) -> int:
-    """V - E + F; 2 for each closed genus-0 component (a sphere-like cortex hemisphere)."""
-    e = edge_counts(faces)
+def is_closed(faces: IntArray, *, edges: EdgeCounts | None = None) -> bool:
+    """True if there are faces and every edge is shared by exactly two of them.
+
+    ``edges``: :func:`edge_counts` of ``faces`` if already computed.
+    """
+    e = edge_counts(faces) if edges is None else edges
+    return bool(len(faces) and np.all(e.count == 2))
+
+
+def euler_characteristic(n_vertices_used: int, faces: IntArray, *, edges: EdgeCounts | None = None) -> int:
+    """V - E + F; 2 for each closed genus-0 component (a sphere-like cortex hemisphere).
+
+    ``edges``: :func:`edge_counts` of ``faces`` if already computed.
+    """
+    e = edge_counts(faces) if edges is None else edges
     return int(n_vertices_used - len(e.unique) + len(faces))
 
 

@@ -22,6 +22,7 @@ import numpy as np
 from scipy.spatial import cKDTree
 
 from .._typing import ArrayLike, FloatArray, IntArray
+from . import meshstats
 
 __all__ = ["SurfaceQuery", "surface_query", "closest_points", "face_normals"]
 
@@ -33,6 +34,9 @@ _K_FIRST = 8
 
 def face_normals(vertices: ArrayLike, faces: ArrayLike) -> tuple[FloatArray, np.ndarray]:
     """Unit normals of triangles (right-hand rule on the vertex order).
+
+    :func:`prep.geometry.meshstats.face_normals` with a rounding floor: faces whose
+    cross product is within ``eps * max(1, max|v|)^2`` of zero count as degenerate.
 
     Parameters
     ----------
@@ -47,18 +51,9 @@ def face_normals(vertices: ArrayLike, faces: ArrayLike) -> tuple[FloatArray, np.
         False where the triangle has (near) zero area.
     """
     v = np.asarray(vertices, dtype=np.float64)
-    f = np.asarray(faces, dtype=np.int64)
-    cross = np.cross(v[f[:, 1]] - v[f[:, 0]], v[f[:, 2]] - v[f[:, 0]])
-    norm = np.linalg.norm(cross, axis=1)
-    valid = norm > np.finfo(float).eps * max(1.0, float(np.abs(v).max(initial=0.0))) ** 2
-    out = np.zeros_like(cross)
-    out[valid] = cross[valid] / norm[valid, None]
-    return out, valid
-
-
-def _accumulate(index: np.ndarray, values: np.ndarray, size: int) -> np.ndarray:
-    """Sum rows of ``values`` (k, 3) into ``size`` bins by ``index`` (k,)."""
-    return np.stack([np.bincount(index, weights=values[:, j], minlength=size) for j in range(3)], axis=1)
+    # rounding floor: a cross product this short has no reliable direction
+    floor = np.finfo(float).eps * max(1.0, float(np.abs(v).max(initial=0.0))) ** 2
+    return meshstats.face_normals(v, faces, floor=floor)
 
 
 def _unit(a: np.ndarray) -> np.ndarray:
@@ -104,11 +99,10 @@ class SurfaceQuery:
             e2 = _unit(tri[:, (k + 2) % 3] - tri[:, k])
             angles[:, k] = np.arccos(np.clip(np.einsum("ij,ij->i", e1, e2), -1.0, 1.0))
         weighted = (normals[:, None, :] * angles[:, :, None]).reshape(-1, 3)
-        vpn = _accumulate(f.ravel(), weighted, len(v))
+        vpn = meshstats.accumulate_rows(f.ravel(), weighted, len(v))
         # edge pseudo-normals: sum of the adjacent face normals, per (face, edge)
-        edges = np.sort(np.stack([f[:, [0, 1]], f[:, [1, 2]], f[:, [2, 0]]], axis=1).reshape(-1, 2), axis=1)
-        _, inverse = np.unique(edges[:, 0] * len(v) + edges[:, 1], return_inverse=True)
-        acc = _accumulate(inverse, np.repeat(normals, 3, axis=0), int(inverse.max()) + 1)
+        inverse = meshstats.edge_counts(f).inverse
+        acc = meshstats.accumulate_rows(inverse, np.repeat(normals, 3, axis=0), int(inverse.max()) + 1)
         epn = _unit(acc[inverse]).reshape(len(f), 3, 3)
         for name, value in (("vertices", v), ("faces", f), ("normals", normals), ("_tree", cKDTree(centroids)),
                             ("_radius", radius), ("_vertex_pn", _unit(vpn)), ("_edge_pn", epn)):
