@@ -129,7 +129,7 @@ def _partition(s: Surface, prep: _Prepared, target: int, *, refine: int) -> dict
     weights = vertex_areas(v, f, cross=prep.cross)
     # each piece (e.g. both hemispheres in one file) is decimated to its share of the target on its own
     pieces, piece_of_face = np.unique(prep.face_piece, return_inverse=True)
-    piece_area = np.bincount(piece_of_face.reshape(-1), weights=0.5 * np.linalg.norm(prep.cross, axis=1),
+    piece_area = np.bincount(piece_of_face.reshape(-1), weights=face_areas(v, f, cross=prep.cross),
                              minlength=len(pieces))
     shares = _allocate(piece_area, int(target)) if len(pieces) > 1 else [int(target)]
     seeds = np.unique(np.concatenate([decimation_seeds(v, f[piece_of_face.reshape(-1) == i], int(n))

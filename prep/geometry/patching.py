@@ -21,7 +21,7 @@ from scipy.sparse import csgraph
 from scipy.spatial import cKDTree
 
 from .._typing import FloatArray, IntArray
-from .meshstats import referenced, vertex_adjacency, vertex_areas, vertex_normals
+from .meshstats import accumulate_rows, referenced, vertex_adjacency, vertex_areas, vertex_normals
 
 __all__ = ["decimation_seeds", "assign_along_surface", "recentre_seeds", "patch_statistics",
            "count_for_spacing"]
@@ -141,7 +141,7 @@ def recentre_seeds(vertices: FloatArray, patch: IntArray, n_patches: int, weight
     idx = p[members]
     w = np.asarray(weights, dtype=np.float64)[members] + 1e-30
     tot = np.bincount(idx, weights=w, minlength=n_patches)
-    cen = np.stack([np.bincount(idx, weights=w * v[members, j], minlength=n_patches) for j in range(3)], axis=1)
+    cen = accumulate_rows(idx, w[:, None] * v[members], n_patches)
     cen /= np.where(tot > 0, tot, 1.0)[:, None]
     d = np.linalg.norm(v[members] - cen[idx], axis=1)
     order = np.lexsort((d, idx))
@@ -186,7 +186,7 @@ def patch_statistics(vertices: FloatArray, faces: IntArray, patch: IntArray, n_p
     m = p >= 0
     idx, a, nv = p[m], area[m], nrm[m]
     areas = np.bincount(idx, weights=a, minlength=n_patches)
-    acc = np.stack([np.bincount(idx, weights=a * nv[:, j], minlength=n_patches) for j in range(3)], axis=1)
+    acc = accumulate_rows(idx, a[:, None] * nv, n_patches)
     length = np.linalg.norm(acc, axis=1)
     bad = length <= 1e-12 * np.maximum(areas, np.finfo(float).tiny)
     if bad.any():  # e.g. a patch whose members carry no area: fall back to its largest member's normal
