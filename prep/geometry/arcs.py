@@ -16,6 +16,7 @@ import numpy as np
 import trimesh
 
 from .._typing import FloatArray
+from .layers import ray_radii
 
 __all__ = ["PlaneArc", "plane_arc", "surface_hits"]
 
@@ -28,7 +29,7 @@ def _unit(v: np.ndarray) -> np.ndarray:
 
 
 def surface_hits(mesh: trimesh.Trimesh, origin: np.ndarray, directions: np.ndarray) -> FloatArray:
-    """Farthest intersection of rays from ``origin`` with ``mesh``.
+    """Farthest intersection of rays from ``origin`` with ``mesh`` (:func:`prep.geometry.layers.ray_radii`).
 
     Parameters
     ----------
@@ -41,16 +42,10 @@ def surface_hits(mesh: trimesh.Trimesh, origin: np.ndarray, directions: np.ndarr
     (k, 3) float64
         Hit points; NaN rows where a ray misses.
     """
-    k = len(directions)
-    origins = np.broadcast_to(origin, (k, 3)).copy()
-    locs, ray_idx, _ = mesh.ray.intersects_location(origins, directions, multiple_hits=True)
-    out = np.full((k, 3), np.nan)
-    if len(locs):
-        dist = np.einsum("ij,ij->i", locs - origin, directions[ray_idx])
-        order = np.lexsort((dist, ray_idx))  # per ray, farthest last
-        last = np.r_[ray_idx[order][1:] != ray_idx[order][:-1], True]
-        out[ray_idx[order][last]] = locs[order][last]
-    return out
+    o = np.asarray(origin, dtype=float)
+    d = np.asarray(directions, dtype=float)
+    r = ray_radii(d, mesh.vertices, mesh.faces, o, farthest=True, mesh=mesh)
+    return o + d * r[:, None]
 
 
 @dataclass(frozen=True)
