@@ -9,7 +9,7 @@ import numpy as np
 
 from .._typing import BoolArray, FloatArray, IntArray
 from ..model import Finding
-from .surface import closest_points
+from .layers import inside_and_distance
 
 __all__ = ["DEFAULT_MIN_DISTANCE_MM", "surface_clearance", "clearance_findings"]
 
@@ -31,20 +31,15 @@ def surface_clearance(points: FloatArray, vertices: FloatArray, faces: IntArray)
     Returns
     -------
     inside : (m,) bool
-        By ray parity (trimesh ``contains``; fast with embreex, LIBRARIES.md).
     distance : (m,) float64, metres
         To the closest point of the surface (not to its vertices: a vertex
-        KD-tree overestimates by ~0.6 mm on a 20k-face mesh, LIBRARIES.md),
-        by :func:`prep.geometry.surface.closest_points`.
-    """
-    import trimesh
+        KD-tree overestimates by ~0.6 mm on a 20k-face mesh, LIBRARIES.md).
 
-    p = np.asarray(points, dtype=np.float64).reshape(-1, 3)
-    if len(p) == 0:
-        return np.zeros(0, bool), np.zeros(0)
-    mesh = trimesh.Trimesh(np.asarray(vertices, dtype=np.float64), np.asarray(faces, dtype=np.int64), process=False)
-    dist = np.abs(closest_points(mesh.vertices, mesh.faces, p)[1])
-    return np.asarray(mesh.contains(p), dtype=bool), dist
+    Both come from :func:`prep.geometry.layers.inside_and_distance` (one exact
+    closest-point query; the winding number for meshes that are not one closed,
+    consistently wound piece).
+    """
+    return inside_and_distance(points, vertices, faces)
 
 
 def clearance_findings(inside: BoolArray, distance: FloatArray, *, min_distance_mm: float, excluded: bool,
