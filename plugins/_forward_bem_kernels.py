@@ -25,6 +25,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 import scipy.sparse as sp
 
+from prep.geometry.layers import dot3
 from prep.geometry.meshstats import edge_counts, face_areas, face_cross, face_normals
 
 FOUR_PI = 4.0 * np.pi
@@ -43,11 +44,6 @@ def _compiled():  # noqa: ANN202 - the numba kernel or None
     except ImportError:
         return None
     return linear_weights
-
-
-def _dot3(r: np.ndarray, m: np.ndarray) -> np.ndarray:
-    """(b, 3) @ (3, k) by broadcasting: BLAS is slow for an inner size of 3."""
-    return r[:, 0:1] * m[0] + r[:, 1:2] * m[1] + r[:, 2:3] * m[2]
 
 
 class LinearDoubleLayer:
@@ -142,11 +138,11 @@ class LinearDoubleLayer:
     def _block(self, r: np.ndarray) -> np.ndarray:
         k = len(self.faces)
         rr = np.einsum("ij,ij->i", r, r)[:, None]
-        dist_sq = np.maximum(self.vsq[None, :] - 2.0 * (_dot3(r, self.vt)) + rr, 0.0)
+        dist_sq = np.maximum(self.vsq[None, :] - 2.0 * (dot3(r, self.vt)) + rr, 0.0)
         dist = np.sqrt(dist_sq)
         # edges: s_a = t.(x_a - r), s_b = s_a + L
         ea, eb = self.edges[:, 0], self.edges[:, 1]
-        sa = self.etx[None, :] - _dot3(r, self.et)
+        sa = self.etx[None, :] - dot3(r, self.et)
         sb = sa + self.elen[None, :]
         na, nb = dist[:, ea], dist[:, eb]
         fwd = sa + sb >= 0.0
@@ -159,7 +155,7 @@ class LinearDoubleLayer:
         d01 = 0.5 * (sq[0] + sq[1] - self.edge_len_sq_face[0])
         d12 = 0.5 * (sq[1] + sq[2] - self.edge_len_sq_face[1])
         d20 = 0.5 * (sq[2] + sq[0] - self.edge_len_sq_face[2])
-        rm = _dot3(r, self.rmat)
+        rm = dot3(r, self.rmat)
         num = self.det0[None, :] - rm[:, :k]
         den = n[0] * n[1] * n[2] + d01 * n[2] + d20 * n[1] + d12 * n[0]
         with np.errstate(divide="ignore", invalid="ignore"):

@@ -30,6 +30,7 @@ import numpy as np
 from prep import ForwardModel, ForwardSolver, UsageError, VolumeConductor, hookimpl
 from prep.atomic import write_bytes_atomic
 from prep.geometry.layers import inside
+from prep.geometry.surface import closest_points
 
 from ._forward_bem_kernels import infinite_potentials
 from ._forward_bem_solve import transfer_to_scalp
@@ -101,9 +102,9 @@ def interpolation_matrix(points: np.ndarray, vertices: np.ndarray, faces: np.nda
     """Project points on a mesh; barycentric weights (m, n_vertices) and projected points (m, 3)."""
     import trimesh
 
-    mesh = trimesh.Trimesh(np.asarray(vertices, dtype=float), np.asarray(faces), process=False)
-    proj, _, tri = trimesh.proximity.closest_point(mesh, np.asarray(points, dtype=float))
-    corners = mesh.triangles[tri]
+    v = np.asarray(vertices, dtype=float)
+    proj, _, tri = closest_points(v, faces, np.asarray(points, dtype=float))
+    corners = v[np.asarray(faces)[tri]]
     bary = trimesh.triangles.points_to_barycentric(corners, proj)
     bary = np.clip(bary, 0.0, None)
     bary /= bary.sum(axis=1, keepdims=True)

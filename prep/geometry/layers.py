@@ -22,7 +22,7 @@ __all__ = [
     "icosphere", "signed_volume", "solid_angle_sum",
     "inside", "inside_and_distance", "star_shaped", "ray_radii", "ray_radii_exact", "remesh_radial", "offset_inward", "nearest_distance",
     "nesting", "interior_centre", "edge_use_counts", "is_closed", "orient_outward", "derive_inward",
-    "triangle_solid_angles", "icosphere_subdivisions",
+    "triangle_solid_angles", "icosphere_subdivisions", "dot3",
 ]
 
 _PHI = (1.0 + 5.0 ** 0.5) / 2.0
@@ -83,20 +83,20 @@ def solid_angle_sum(points: np.ndarray, vertices: np.ndarray, faces: np.ndarray,
     out = np.empty(len(p))
     for s in range(0, len(p), block):
         r = p[s:s + block]
-        sq = np.maximum(vsq[None, :] - 2.0 * _dot3(r, v.T) + np.einsum("ij,ij->i", r, r)[:, None], 0.0)
+        sq = np.maximum(vsq[None, :] - 2.0 * dot3(r, v.T) + np.einsum("ij,ij->i", r, r)[:, None], 0.0)
         d2 = [sq[:, f[:, c]] for c in range(3)]
         n = [np.sqrt(d) for d in d2]
         d01 = 0.5 * (d2[0] + d2[1] - elen[0])
         d12 = 0.5 * (d2[1] + d2[2] - elen[1])
         d20 = 0.5 * (d2[2] + d2[0] - elen[2])
-        num = det0[None, :] - _dot3(r, area2n)
+        num = det0[None, :] - dot3(r, area2n)
         den = n[0] * n[1] * n[2] + d01 * n[2] + d20 * n[1] + d12 * n[0]
         out[s:s + block] = 2.0 * np.arctan2(num, den).sum(axis=1)
     return out
 
 
-def _dot3(r: np.ndarray, m: np.ndarray) -> np.ndarray:
-    """(b, 3) @ (3, k) by broadcasting (BLAS is slow for an inner size of 3)."""
+def dot3(r: np.ndarray, m: np.ndarray) -> np.ndarray:
+    """(b, 3) @ (3, k) -> (b, k) by broadcasting (BLAS is slow for an inner size of 3)."""
     return r[:, 0:1] * m[0] + r[:, 1:2] * m[1] + r[:, 2:3] * m[2]
 
 
@@ -257,11 +257,11 @@ def ray_radii_exact(directions: np.ndarray, vertices: np.ndarray, faces: np.ndar
     out = np.full(len(d), np.nan)
     for s in range(0, len(d), block):
         dd = d[s:s + block]
-        det = _dot3(dd, det_m)
+        det = dot3(dd, det_m)
         ok = np.abs(det) > 1e-300
         inv = np.divide(1.0, det, out=np.zeros_like(det), where=ok)
-        u = _dot3(dd, u_m) * inv
-        w = _dot3(dd, w_m) * inv
+        u = dot3(dd, u_m) * inv
+        w = dot3(dd, w_m) * inv
         r = r_num[None, :] * inv
         hit = ok & (u >= -1e-9) & (w >= -1e-9) & (u + w <= 1 + 1e-9) & (r > 0)
         rr = np.where(hit, r, -np.inf).max(axis=1) if farthest else np.where(hit, r, np.inf).min(axis=1)
