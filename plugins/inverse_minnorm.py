@@ -24,7 +24,8 @@ from typing import Any
 import numpy as np
 
 from prep import InverseProblem, InverseSolver, SourceEstimate, UsageError, hookimpl
-from prep.geometry.linear_inverse import effective_rank, thin_svd, tikhonov_lambda2, whitener
+from prep.geometry.linear_inverse import (effective_rank, filter_factors, resolution_diagonal, thin_svd,
+                                          tikhonov_lambda2, whitener)
 
 _UNIT = {"minimum-norm": "A*m", "dspm": "1", "sloreta": "1"}
 
@@ -46,9 +47,9 @@ def _solve(problem: InverseProblem, method: str) -> SourceEstimate:
     gain = s / (s * s + lambda2)
     amp = vt.T @ (gain[:, None] * (u.T @ yw))  # (n_sources, n_times)
     if method == "dspm":  # noise of the estimate: rows of K with whitened (identity) noise
-        amp = amp / np.sqrt(np.einsum("ij,ij,i->j", vt, vt, gain * gain))[:, None]
+        amp = amp / np.sqrt(resolution_diagonal(vt, gain * gain))[:, None]  # diag(K K^T), same form as diag(R)
     elif method == "sloreta":  # diag of R = V diag(s^2 / (s^2 + lambda^2)) V^T
-        amp = amp / np.sqrt(np.einsum("ij,ij,i->j", vt, vt, gain * s))[:, None]
+        amp = amp / np.sqrt(resolution_diagonal(vt, filter_factors(s, lambda2)))[:, None]
     eff, _floor = effective_rank(s, lw.shape[0], problem.snr)
     return SourceEstimate(solver=method, amplitudes=amp, unit=_UNIT[method],
                           metrics={"lambda2": lambda2, "snr": problem.snr, "effective_rank": eff})
