@@ -58,10 +58,33 @@ def face_normals(vertices: FloatArray, faces: IntArray, *, cross: FloatArray | N
     ``cross``: :func:`face_cross` if already computed.
     """
     c = face_cross(vertices, faces) if cross is None else np.asarray(cross, dtype=np.float64)
-    norm = np.linalg.norm(c, axis=1)
+    return _unit_rows(c, floor)
+
+
+#: below this row length (m^2) the squares in a plain norm lose precision or underflow
+_TINY_NORM = 1e-140
+
+
+def _unit_rows(a: FloatArray, floor: float = 0.0) -> tuple[FloatArray, BoolArray]:
+    """Rows of ``a`` (k, 3) scaled to unit length, and a (k,) mask of rows longer than ``floor``.
+
+    Rows too short for a plain norm (squares near underflow) are rescaled by
+    their largest component first; the others are divided by the plain norm.
+    Invalid rows are zero.
+    """
+    norm = np.linalg.norm(a, axis=1)
+    tiny = np.flatnonzero(norm < _TINY_NORM)
+    if tiny.size:
+        big = np.abs(a[tiny]).max(axis=1)
+        scaled = a[tiny] / np.where(big > 0, big, 1.0)[:, None]
+        scaled_norm = np.linalg.norm(scaled, axis=1)
+        norm[tiny] = scaled_norm * big
     valid = norm > floor
-    out = np.zeros_like(c)
-    out[valid] = c[valid] / norm[valid, None]
+    out = np.zeros_like(a)
+    out[valid] = a[valid] / norm[valid, None]
+    if tiny.size:  # there the norm itself is inexact: divide the rescaled rows by their own norm
+        keep = valid[tiny]
+        out[tiny[keep]] = scaled[keep] / scaled_norm[keep, None]
     return out, valid
 
 
@@ -99,11 +122,7 @@ def vertex_normals(vertices: FloatArray, faces: IntArray, *,
     f = np.asarray(faces, dtype=np.int64)
     c = face_cross(vertices, f) if cross is None else np.asarray(cross)
     acc = accumulate_rows(f.ravel(), np.repeat(c, 3, axis=0), n)
-    norm = np.linalg.norm(acc, axis=1)
-    valid = norm > 0
-    acc[valid] /= norm[valid, None]
-    acc[~valid] = 0.0
-    return acc, valid
+    return _unit_rows(acc)
 
 
 def surface_area(vertices: FloatArray, faces: IntArray) -> float:
