@@ -13,23 +13,13 @@ Run: ``python benchmarks/bench_geometry.py``
 """
 from __future__ import annotations
 
-import statistics
 import time
+import timeit
 
 import numpy as np
 
 from prep.geometry import layers, meshstats
 from prep.geometry.surface import surface_query
-
-
-def timed(fn, repeat: int = 5) -> float:  # noqa: ANN001
-    fn()
-    times = []
-    for _ in range(repeat):
-        t = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t)
-    return statistics.median(times)
 
 
 def main() -> None:
@@ -43,7 +33,7 @@ def main() -> None:
     rays, _ = layers.icosphere(4)
 
     a = rng.standard_normal((1000, 1000))
-    floor = timed(lambda: a @ a)
+    floor = best(lambda: a @ a)
     print(f"mesh: {len(vertices)} vertices, {len(faces)} faces; {len(points)} query points, {len(rays)} rays")
     print(f"BLAS floor (1000x1000 matmul): {floor * 1e3:.1f} ms")
 
@@ -55,7 +45,7 @@ def main() -> None:
         ("rays, nearest crossing", lambda: layers.ray_radii(rays, vertices, faces, centre)),
     ]
     for name, fn in rows:
-        report(name, timed(fn, 3), floor)
+        report(name, best(fn), floor)
 
     t = time.perf_counter()
     inside_wind = np.abs(layers.solid_angle_sum(points, vertices, faces)) > 2 * np.pi
@@ -67,6 +57,12 @@ def main() -> None:
     r_fast = layers.ray_radii(rays, vertices, faces, centre)
     print(f"inside: {int((inside_fast != inside_wind).sum())} disagreements with the winding number; "
           f"rays: max difference {np.nanmax(np.abs(r_fast - r_exact)):.2e} m")
+
+
+def best(fn, repeat: int = 3) -> float:  # noqa: ANN001
+    """Fastest of ``repeat`` warm calls, seconds (the standard library's timeit)."""
+    fn()
+    return min(timeit.repeat(fn, number=1, repeat=repeat))
 
 
 def report(name: str, seconds: float, floor: float) -> None:
