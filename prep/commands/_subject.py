@@ -4,6 +4,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from ..atomic import check_writable
 from ..console import Context, exit_status, format_findings
 from ..recipe import Recipe
 
@@ -43,6 +44,9 @@ def human_summary(res) -> str:  # noqa: ANN001 - pipeline.RunResult
 
 def run_one(recipe: Recipe, args: argparse.Namespace, ctx: Context, out: Path | None) -> int:
     from ..pipeline import prepare_subject  # heavy: imported when a subject is prepared
+
+    base = recipe.path.parent if recipe.path else Path.cwd()
+    check_writable(out or recipe.output.get("bundle") or base / "out" / f"{recipe.subject}-forward")
 
     with ctx.progress(STEPS, f"preparing {recipe.subject}") as advance:
         res = prepare_subject(ctx.registry, recipe, out=out, force=args.force, advance=advance,

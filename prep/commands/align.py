@@ -4,14 +4,13 @@ from __future__ import annotations
 import argparse
 import json
 import shutil
-import tempfile
 from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from ..atomic import write_text_atomic
+from ..atomic import staging_dir, write_text_atomic
 from ..console import Context, exit_status, format_findings
 from ..model import FIDUCIALS, Finding, Sensors
 
@@ -129,8 +128,7 @@ def _write_placed(ctx: Context, placed: Sensors, path: Path) -> list[Path]:
 def _write(ctx: Context, out: Path, doc: dict[str, Any], res: Any, scalp: Any) -> list[Path]:
     from ..placement import placement_figure
 
-    out.mkdir(parents=True, exist_ok=True)
-    stage = Path(tempfile.mkdtemp(prefix=".align.", suffix=".part", dir=out))
+    stage = staging_dir(out / "align")
     try:
         staged = [stage / "alignment.json"]
         write_text_atomic(staged[0], json.dumps(doc, indent=2, allow_nan=False) + "\n")
