@@ -58,7 +58,14 @@ def test_duplicate_labels(reg, write):
     s = read_sensors(reg, write("d.csv", "label,x,y,z\nFp1,1,80,20\nfp1,2,80,20\nCz,0,0,95\n"), units="mm")
     assert s.labels.count("Fp1") == 2
     f = _codes(reg, s)["input.duplicate-label"]
-    assert f.subjects == ("Fp1",) and f.severity == "fail" and "rows 1, 2" in f.message
+    # the file's own line numbers (header is line 1), so the user can go straight to them
+    assert f.subjects == ("Fp1",) and f.severity == "fail" and "lines 2, 3" in f.message
+
+
+def test_nonfinite_coordinates_name_their_line(reg, write):
+    s = read_sensors(reg, write("n.csv", "label,x,y,z\nFp1,1,80,20\nCz,0,nan,95\n"), units="mm")
+    f = _codes(reg, s)["input.nonfinite"]
+    assert f.subjects == ("Cz",) and "(line 3)" in f.message
 
 
 def test_missing_fiducials(reg, write):
