@@ -159,8 +159,9 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
     if outside.any():
         i = int(np.flatnonzero(outside)[0])
         dist = float(np.linalg.norm(positions[i] - conductor.centre))
-        raise ReadError(src_path, lines[i], f"source at {dist:.4g} m from the sphere centre is not inside the "
-                                            f"innermost sphere (radius {conductor.radii[0]:.4g} m)")
+        raise ReadError(src_path, lines[i], f"source at {dist * 1e3:.1f} mm from the sphere centre is not inside "
+                                            f"the innermost sphere (radius {conductor.radii[0] * 1e3:.1f} mm; "
+                                            "source files are in metres)")
     fm = build_forward(ctx.registry, conductor, eeg.labels, eeg.positions, reference=args.reference)
     step = 4096
     parts = []
@@ -185,8 +186,8 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
                      f"{'average' if args.reference == 'average' else args.reference} reference"]
         d = conductor.describe()
         if conductor.kind == "spheres":
-            lines_out.append("  spheres: centre " + ", ".join(f"{v:.4f}" for v in d["centre_m"]) + " m; radii "
-                             + ", ".join(f"{v:.4f}" for v in d["radii_m"]) + " m; conductivities "
+            lines_out.append("  spheres: centre " + ", ".join(f"{v * 1e3:.1f}" for v in d["centre_m"]) + " mm; radii "
+                             + ", ".join(f"{v * 1e3:.1f}" for v in d["radii_m"]) + " mm; conductivities "
                              + ", ".join(f"{v:g}" for v in d["conductivities_S_per_m"]) + " S/m")
         else:
             lines_out.append("  layers: conductivities "

@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import numpy as np
@@ -87,6 +88,16 @@ def test_fixed_orientation_npy_explicit_sphere_and_reference(cli, sensors, tmp_p
     assert doc["conductor"]["radii_m"] == [0.08, 0.085, 0.092]
 
 
+def test_human_summary_gives_sphere_geometry_in_mm(cli, sensors, tmp_path, capsys):
+    """People read millimetres (the kit's convention for human output); the JSON keeps metres."""
+    src = _tsv(tmp_path / "src.tsv", "x y z", ["0 0 0.03"])
+    code = cli(["forward", "--model", "spheres", "--sensors", str(sensors), "--sources", str(src),
+                "--out", str(tmp_path / "lf.npy"), "--centre", "0,0.005,0.03", "--radii", "0.08,0.085,0.092"])
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "centre 0.0, 5.0, 30.0 mm; radii 80.0, 85.0, 92.0 mm" in out
+
+
 def test_bad_source_row_names_file_and_line_and_writes_nothing(cli, sensors, tmp_path, capsys):
     src = _tsv(tmp_path / "src.tsv", "x y z", ["0 0 0.03", "0.01 oops 0.05"])
     out = tmp_path / "lf.npy"
@@ -104,6 +115,7 @@ def test_source_outside_innermost_sphere_is_exit_2(cli, sensors, tmp_path, capsy
                 "--out", str(out)])
     err = capsys.readouterr().err
     assert code == 2 and f"{src}:4:" in err and "innermost sphere" in err
+    assert re.search(r"at \d+\.\d mm from the sphere centre .* \(radius \d+\.\d mm", err)  # mm for people
     assert not out.exists()
 
 
