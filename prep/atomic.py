@@ -64,8 +64,8 @@ def check_writable(path: str | os.PathLike[str]) -> None:
 
     Walks up to the nearest existing ancestor, which must be a folder we may write into.
     """
-    target = Path(path).absolute()
-    ancestor = target.parent
+    target = Path(path)
+    ancestor = target.absolute().parent
     while not ancestor.exists() and ancestor != ancestor.parent:
         ancestor = ancestor.parent
     if not ancestor.is_dir():

@@ -10,7 +10,7 @@ from typing import Any
 
 import numpy as np
 
-from ..atomic import staging_dir, write_text_atomic
+from ..atomic import check_writable, staging_dir, write_text_atomic
 from ..console import Context, exit_status, format_findings
 from ..model import FIDUCIALS, Finding, Sensors
 
@@ -194,6 +194,8 @@ def run(args: argparse.Namespace, ctx: Context) -> int:
     from ..placement import place_sensors
 
     options, check_options = _settings(ctx, args)
+    if args.out:
+        check_writable(Path(args.out) / "alignment.json")
     sensors, scalp, fids, findings = _read(ctx, args)
     res = place_sensors(ctx.registry, sensors, scalp, fids, method=args.method, options=options,
                         check_options=check_options)

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..atomic import atomic_file
+from ..atomic import atomic_file, check_writable
 from ..errors import ReadError, UsageError
 from ..forward import DEFAULT_SHELLS, build_forward, outside_innermost, sphere_conductor
 from ..model import VolumeConductor
@@ -149,6 +149,7 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
     out = Path(args.out)
     if out.is_dir():
         raise UsageError(f"{out}: is a directory; give a file name for the lead field")
+    check_writable(out)  # refuse before a (possibly long) computation
     sensors = read_sensors(ctx.registry, args.sensors, reader=args.reader, units=args.units)
     eeg = sensors.select(sensors.eeg_mask)
     if len(eeg) == 0:

@@ -54,3 +54,20 @@ def test_forward_into_an_unwritable_place_exits_2_in_one_line(tmp_path: Path, ca
     err = capsys.readouterr().err
     assert status == 2, err
     assert len(err.strip().splitlines()) == 1 and "cannot write here" in err and "Traceback" not in err
+
+
+@pytest.mark.parametrize("argv", [
+    ["patches", "{c}", "--out", "{bad}/p.npz"],
+    ["export", "{c}", "--to", "mat", "--out", "{bad}/x.mat"],
+    ["forward", "--model", "spheres", "--sensors", "{c}", "--sources", "{c}", "--out", "{bad}/lf.npy"],
+])
+def test_commands_refuse_an_unwritable_output_before_reading(tmp_path: Path, capsys: pytest.CaptureFixture,
+                                                             argv: list[str]) -> None:
+    """The output location is checked before the inputs are read or anything is computed."""
+    (tmp_path / "afile").write_text("x")
+    dummy = tmp_path / "c.ply"
+    dummy.write_text("not read")
+    args = [a.format(c=dummy, bad=tmp_path / "afile") for a in argv]
+    status = cli.main(args)
+    err = capsys.readouterr().err
+    assert status == 2 and "cannot write here" in err, err
