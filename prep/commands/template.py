@@ -22,7 +22,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--scalp", required=True, metavar="MESH", help="scalp mesh (PLY, STL, OBJ, OFF, GIfTI...)")
     parser.add_argument("--fiducials", required=True, metavar="FILE",
                         help="electrode-style file holding nasion, LPA, RPA (and optionally inion)")
-    parser.add_argument("--out", required=True, metavar="FILE", help="output ending in electrodes.tsv, e.g. sub-01_electrodes.tsv "
+    parser.add_argument("--out", required=True, metavar="FILE",
+                        help="output ending in electrodes.tsv, e.g. sub-01_electrodes.tsv "
                         "(its coordsystem.json is written beside it)")
     parser.add_argument("--template", default=None, metavar="NAME",
                         help="montage template plugin (default: the one offering the system)")

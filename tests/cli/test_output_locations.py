@@ -44,7 +44,8 @@ def test_written_files_and_folders_follow_the_umask(tmp_path: Path) -> None:
 def test_forward_into_an_unwritable_place_exits_2_in_one_line(tmp_path: Path, capsys: pytest.CaptureFixture) -> None:
     sensors = tmp_path / "e.tsv"
     angles = np.linspace(0, 2 * np.pi, 12, endpoint=False)
-    rows = [f"E{i}\t{0.09 * np.cos(a):.4f}\t{0.09 * np.sin(a):.4f}\t{0.03 + 0.02 * (i % 3):.4f}" for i, a in enumerate(angles)]
+    rows = [f"E{i}\t{0.09 * np.cos(a):.4f}\t{0.09 * np.sin(a):.4f}\t{0.03 + 0.02 * (i % 3):.4f}"
+            for i, a in enumerate(angles)]
     sensors.write_text("# units: m\nlabel\tx\ty\tz\n" + "\n".join(rows) + "\n")
     sources = tmp_path / "s.tsv"
     sources.write_text("x\ty\tz\n0\t0\t0.03\n")
