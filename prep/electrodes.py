@@ -191,8 +191,10 @@ def _settle_unit(path: str, unit: str | None, unit_source: str | None, channels:
         return guess, "assumed", [_units_finding(
             f"{path}: no length unit given; assumed {guess} because the {what} fits a human head in {guess}",
             path, {**values, "assumed_unit": guess})]
+    why = ("too few points to judge one" if not math.isfinite(value)
+           else f"the {what} fits a human head in no unit")
     return "m", "assumed", [_units_finding(
-        f"{path}: no length unit given and the {what} fits no unit; assumed metres",
+        f"{path}: no length unit given and {why}; assumed metres",
         path, {**values, "assumed_unit": "m"})]
 
 

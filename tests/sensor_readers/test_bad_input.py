@@ -4,6 +4,7 @@ from __future__ import annotations
 import pytest
 
 from prep import ReadError, make_registry
+from prep.errors import UsageError
 from prep.electrodes import Limits, text_lines
 from prep.readers import read_sensors
 from prep_plugins.check_sensors import check_sensors
@@ -132,3 +133,14 @@ def test_header_without_coordinates(reg, write):
     with pytest.raises(ReadError, match="missing x, y, z") as info:
         read_sensors(reg, write("x.csv", "label,a,b,c\nCz,0,0,1\n"))
     assert info.value.line == 1
+
+
+def test_too_few_points_to_judge_the_unit_says_so(reg, write):
+    s = read_sensors(reg, write("one.csv", "label,x,y,z\nNAS,0,9,0\n"))
+    f = next(f for f in s.findings if f.code == "input.units-suspect")
+    assert "too few points to judge one; assumed metres" in f.message and "nothing measurable" not in f.message
+
+
+def test_a_folder_given_as_electrode_file(reg, tmp_path):
+    with pytest.raises(UsageError, match="is a folder, not a"):
+        read_sensors(reg, tmp_path)
