@@ -11,6 +11,7 @@ from typing import Any
 import numpy as np
 
 from ..atomic import check_writable, staging_dir, write_text_atomic
+from ..checks import run_checks
 from ..console import Context, exit_status, format_findings
 from ..model import FIDUCIALS, Finding, Sensors
 
@@ -64,7 +65,8 @@ def _read(ctx: Context, args: argparse.Namespace) -> tuple[Sensors, Any, dict | 
 
     reg = ctx.registry
     sensors = read_sensors(reg, args.sensors, units=args.sensor_units)
-    findings = list(sensors.findings)
+    # the same sensor checks as `inspect` and `run` (a NaN electrode or a doubled label is a fail here too)
+    findings = list(sensors.findings) + list(run_checks(reg, "sensors", sensors=sensors).findings)
     if args.headshape:
         hs = read_sensors(reg, args.headshape, units=args.sensor_units)
         findings += hs.findings
