@@ -72,3 +72,20 @@ def test_commands_refuse_an_unwritable_output_before_reading(tmp_path: Path, cap
     status = cli.main(args)
     err = capsys.readouterr().err
     assert status == 2 and "cannot write here" in err, err
+
+
+def test_a_read_only_folder_is_a_usage_error(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    """As root a chmod 555 folder is still writable, so the OS refusal is simulated where it happens."""
+    import tempfile
+
+    def refuse(*args, **kwargs):  # noqa: ANN002, ANN003, ANN202
+        raise PermissionError(13, "Permission denied")
+
+    monkeypatch.setattr(tempfile, "mkstemp", refuse)
+    monkeypatch.setattr(tempfile, "mkdtemp", refuse)
+    with pytest.raises(UsageError, match=r"x\.txt: cannot write here \(Permission denied\)"):
+        write_text_atomic(tmp_path / "x.txt", "hello")
+    with pytest.raises(UsageError, match=r"b: cannot write here \(Permission denied\)"):
+        with atomic_dir(tmp_path / "b"):
+            pass  # pragma: no cover - never reached
+    assert list(tmp_path.iterdir()) == []
