@@ -9,7 +9,8 @@ import numpy as np
 from ..atomic import atomic_file, check_writable
 from ..errors import ReadError, UsageError
 from ..forward import DEFAULT_SHELLS, build_forward, outside_innermost, sphere_conductor
-from ..model import VolumeConductor
+from ..console import exit_status, format_findings
+from ..model import Sensors, VolumeConductor
 from ..readers import check_input_file, read_sensors, read_surface
 
 HELP = "compute a lead field for given sources with a chosen head model"
@@ -31,7 +32,10 @@ the published defaults of docs/sphere-model.md. Sources must lie inside the
 innermost sphere.
 --model bem: boundary elements on --inner-skull, --outer-skull and --scalp
 meshes (same frame as the electrodes), conductivities inside -> out
-(default 0.33, 0.0042, 0.33 S/m).
+(default 0.33, 0.0042, 0.33 S/m); --mesh-units states the meshes' length unit
+(else it is inferred from their size, with an input.units-suspect warning).
+Exit 0, or 1 if a reader reported a failed check; 2 when an input cannot be
+used (nothing is written).
 """
 
 #: default conductivities for three nested layers, inside -> out (brain, skull, scalp), S/m:
@@ -54,6 +58,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--scalp", metavar="MESH", help="scalp mesh (bem)")
     parser.add_argument("--outer-skull", metavar="MESH", help="outer skull mesh (bem)")
     parser.add_argument("--inner-skull", metavar="MESH", help="inner skull mesh (bem)")
+    parser.add_argument("--mesh-units", metavar="UNIT", help="length unit of the meshes (m, cm, mm; bem)")
     parser.add_argument("--json", action="store_true", help="print one JSON document on stdout")
 
 
@@ -123,7 +128,7 @@ def read_sources(path: Path) -> tuple[np.ndarray, np.ndarray | None, list[int]]:
 
 def _conductor(args: argparse.Namespace, ctx, positions: np.ndarray, frame: str) -> VolumeConductor:  # noqa: ANN001
     if args.model == "spheres":
-        for opt in ("scalp", "outer_skull", "inner_skull"):
+        for opt in ("scalp", "outer_skull", "inner_skull", "mesh_units"):
             if getattr(args, opt):
                 raise UsageError(f"--{opt.replace('_', '-')} belongs to --model bem")
         return sphere_conductor(positions, centre=_floats("--centre", args.centre, 3),
@@ -136,12 +141,24 @@ def _conductor(args: argparse.Namespace, ctx, positions: np.ndarray, frame: str)
     if missing:
         raise UsageError(f"--model bem needs {', '.join(missing)}")
     sig = _floats("--conductivities", args.conductivities, 3) or list(LAYER_CONDUCTIVITIES)
-    layers = tuple(read_surface(ctx.registry, getattr(args, o), o, frame=frame)
+    layers = tuple(read_surface(ctx.registry, getattr(args, o), o, frame=frame, units=args.mesh_units)
                    for o in ("inner_skull", "outer_skull", "scalp"))
     try:
         return VolumeConductor(kind="layers", conductivities=sig, layers=layers, frame=frame)
     except ValueError as exc:
         raise UsageError(f"--conductivities: {exc}") from exc
+
+
+def _refuse_nonfinite(sensors: Sensors) -> None:
+    """A lead field needs every EEG electrode's position: a missing one is unusable input (exit 2)."""
+    bad = np.flatnonzero(sensors.eeg_mask & ~np.all(np.isfinite(sensors.positions), axis=1))
+    if bad.size:
+        i = int(bad[0])
+        lines = sensors.provenance.extra.get("channel_lines")
+        line = lines[i] if lines is not None and len(lines) == len(sensors) else None
+        raise ReadError(sensors.provenance.file or "sensors", line,
+                        f"electrode {sensors.labels[i]} has a missing or non-finite coordinate "
+                        f"({bad.size} electrode(s) in all); a lead field needs every electrode's position")
 
 
 def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
@@ -154,8 +171,11 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
     eeg = sensors.select(sensors.eeg_mask)
     if len(eeg) == 0:
         raise UsageError(f"{args.sensors}: no EEG channels")
+    _refuse_nonfinite(sensors)
     positions, normals, lines = read_sources(src_path)
     conductor = _conductor(args, ctx, eeg.positions, eeg.frame)
+    # what the readers noticed (units assumed from the size...) is shown, as in the other commands
+    findings = [*sensors.findings, *(f for layer in conductor.layers or () for f in layer.findings)]
     outside = outside_innermost(conductor, positions)
     if outside.any():
         i = int(np.flatnonzero(outside)[0])
@@ -179,7 +199,8 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
     doc = {"output": str(out), "shape": list(matrix.shape), "orientation": orientation,
            "reference": args.reference, "units": "V/(A*m)", "model": args.model, "solver": fm.solver,
            "conductor": conductor.describe(), "sensor_labels": list(eeg.labels),
-           "n_sensors": matrix.shape[0], "n_sources": matrix.shape[1], "findings": []}
+           "n_sensors": matrix.shape[0], "n_sources": matrix.shape[1],
+           "findings": [f.to_dict() for f in findings]}
 
     def human() -> str:
         lines_out = [f"wrote {out}: {matrix.shape[0]} EEG channels x {matrix.shape[1]} sources"
@@ -193,7 +214,9 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
         else:
             lines_out.append("  layers: conductivities "
                              + ", ".join(f"{v:g}" for v in d["conductivities_S_per_m"]) + " S/m")
+        if findings:
+            lines_out.append(format_findings(findings))
         return "\n".join(lines_out)
 
     ctx.emit(doc, human)
-    return 0
+    return exit_status(findings)

@@ -152,3 +152,32 @@ def test_bem_needs_its_meshes(cli, sensors, tmp_path, capsys):
     code = cli(["forward", "--model", "bem", "--sensors", str(sensors), "--sources", str(src),
                 "--out", str(tmp_path / "lf.npy")])
     assert code == 2 and "--model bem needs --inner-skull, --outer-skull, --scalp" in capsys.readouterr().err
+
+
+def test_nan_electrode_is_exit_2_naming_file_and_line(cli, tmp_path, capsys):
+    """A NaN electrode used to surface as 'cannot fit a sphere' without a file; now file:line and label."""
+    path = tmp_path / "cap.csv"
+    rows = [f"E{i},{0.09 * np.cos(a):.4f},{0.09 * np.sin(a):.4f},{0.03 + 0.01 * (i % 4):.4f}"
+            for i, a in enumerate(np.linspace(0, 2 * np.pi, 16, endpoint=False))]
+    rows[5] = "E5,nan,0.01,0.05"
+    path.write_text("# units: m\nlabel,x,y,z\n" + "\n".join(rows) + "\n")
+    src = _tsv(tmp_path / "src.tsv", "x y z", ["0 0 0.03"])
+    code = cli(["forward", "--model", "spheres", "--sensors", str(path), "--sources", str(src),
+                "--out", str(tmp_path / "lf.npy")])
+    err = capsys.readouterr().err
+    assert code == 2 and f"{path}:8: electrode E5" in err
+    assert not (tmp_path / "lf.npy").exists()
+
+
+def test_reader_findings_are_shown_and_mesh_units_belong_to_bem(cli, tmp_path, capsys):
+    path = tmp_path / "cap.csv"  # no unit stated: the reader assumes metres from the size, with a warning
+    rows = [f"E{i},{0.09 * np.cos(a):.4f},{0.09 * np.sin(a):.4f},{0.03 + 0.01 * (i % 4):.4f}"
+            for i, a in enumerate(np.linspace(0, 2 * np.pi, 16, endpoint=False))]
+    path.write_text("label,x,y,z\n" + "\n".join(rows) + "\n")
+    src = _tsv(tmp_path / "src.tsv", "x y z", ["0 0 0.03"])
+    argv = ["forward", "--model", "spheres", "--sensors", str(path), "--sources", str(src),
+            "--out", str(tmp_path / "lf.npy")]
+    assert cli([*argv, "--json"]) == 0
+    assert "input.units-suspect" in {f["code"] for f in json.loads(capsys.readouterr().out)["findings"]}
+    assert cli([*argv, "--mesh-units", "mm"]) == 2
+    assert "--mesh-units belongs to --model bem" in capsys.readouterr().err
