@@ -496,6 +496,7 @@ def _write(registry: Registry, recipe: Recipe, inputs: SubjectInputs, path: Path
         "sensors": int(lf.shape[0]), "sources": int(lf.shape[1]),
         "fit_rms_mm": _mm(align.meta["alignment"]["metrics"].get("rms_m")),
         "condition_number": _find_number(cond, "condition_number"),
+        "localisation_error_median_mm": _find_number(_find_dict(cond, "peak_localisation_error"), "p50_mm"),
         "head_model": forward.meta["head_model"]["kind"],
         "flagged_electrodes": sum(bool(e["codes"]) for e in align.meta["placement"]["per_electrode"]),
         "findings": {s: sum(f.severity == s for f in findings) for s in ("fail", "warn", "info")},
@@ -505,6 +506,18 @@ def _write(registry: Registry, recipe: Recipe, inputs: SubjectInputs, path: Path
 
 def _mm(x: Any) -> float | None:
     return None if x is None else round(float(x) * 1e3, 3)
+
+
+def _find_dict(doc: Any, key: str) -> Any:
+    """First mapping stored under ``key`` anywhere in a nested dict, or None."""
+    if isinstance(doc, dict):
+        if isinstance(doc.get(key), dict):
+            return doc[key]
+        for v in doc.values():
+            found = _find_dict(v, key)
+            if found is not None:
+                return found
+    return None
 
 
 def _find_number(doc: Any, key: str) -> float | None:
