@@ -198,7 +198,9 @@ class Check(Descriptor):
     - ``"sensors"``: ``run(sensors=Sensors, **options)``
     - ``"surface"``: ``run(surface=Surface, **options)``
     - ``"layers"``: ``run(layers=tuple[Surface, ...], **options)`` inside -> out
-    - ``"placement"``: ``run(sensors=Sensors, scalp=Surface, **options)`` both anatomy frame
+    - ``"placement"``: ``run(sensors=Sensors, scalp=Surface, fiducials=mapping | None,
+      reference=Sensors | None, **options)``, all in the anatomy frame; ``reference`` is the
+      labelled layout a montage template placed on this scalp (None when unavailable)
     - ``"patches"``: ``run(patches=Patches, inner_skull=Surface | None, **options)``
     - ``"leadfield"``: ``run(leadfield=LeadField, sensor_positions=(n,3), **options)``
 

@@ -1,0 +1,104 @@
+"""Private solver of the ``forward_bem`` plugin: the layer system and its scalp transfer matrix.
+
+Linear collocation at the vertices of nested closed layers (inside -> out)
+with conductivity ``sigma[k]`` inside layer k and ``sigma[k+1]`` (0 for the
+outermost) outside. On layer k (Geselowitz 1967 in the collocation form of
+Hamalainen & Sarvas 1989):
+
+    (s_k- + s_k+)/2 V_i - sum_l (s_l- - s_l+)/(4 pi) (Omega^{kl} V_l)_i = g_i
+
+with g the unit-conductivity potential of the source in an infinite medium.
+Rows are divided by (s_k- + s_k+)/2. The self-block diagonal is set so that
+each row of Omega^{kk} sums to 2 pi (the vertex's own solid angle), which
+makes a constant the exact null vector; it is removed by deflation (adding
+1/N to every entry, Lynn & Timlake 1968), which picks the zero-mean solution.
+
+Isolated-problem approach (Hamalainen & Sarvas 1989; Meijs et al. 1989): with
+u' the potential of the source in the brain compartment isolated by the
+inner skull (times sigma_1), the right-hand side becomes
+(sigma_2 / sigma_1) * (g - u' on the inner skull). Outside the inner skull
+g itself equals -(1/4 pi) Omega^{k1} u' (Green's representation of the isolated
+problem), so every right-hand side is a linear map of g on the inner skull
+alone (isolated-source form, Stenroos & Sarvas 2012). The result is one matrix
+T (scalp vertices x inner-skull vertices) with V_scalp = T g_inner.
+"""
+from __future__ import annotations
+
+import numpy as np
+import scipy.linalg as sla
+
+from ._forward_bem_kernels import FOUR_PI, LinearDoubleLayer
+
+TWO_PI = 2.0 * np.pi
+
+
+def _self_block(op: LinearDoubleLayer, vertices: np.ndarray, threads: int | None) -> np.ndarray:
+    w = op.weights(vertices, threads=threads)
+    np.fill_diagonal(w, 0.0)
+    np.fill_diagonal(w, TWO_PI - w.sum(axis=1))
+    return w
+
+
+def transfer_to_scalp(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.ndarray,
+                      threads: int | None = None, rows: np.ndarray | None = None) -> np.ndarray:
+    """Scalp potentials per unit infinite-medium potential on the inner layer.
+
+    Parameters
+    ----------
+    layers : list of (vertices (n_k, 3) metres, faces (f_k, 3) int64), inside -> out, outward
+    sigma : (L,) float64, S/m, conductivity inside each layer
+    threads : int or None
+    rows : (r, n_L) float64 or None
+        Combinations of outer-layer vertices wanted (e.g. the electrodes'
+        barycentric weights); None for every outer vertex (identity).
+
+    Returns
+    -------
+    (r, n_1) float64, V per (V*S/m): ``V_outer = T @ g_inner`` with g the
+    unit-conductivity potential p.(r - r0) / (4 pi |r - r0|^3) at the inner
+    layer's vertices. Defined up to a constant per column (reference it).
+    """
+    sig = np.asarray(sigma, dtype=float)
+    n_layers = len(layers)
+    s_in = sig
+    s_out = np.append(sig[1:], 0.0)
+    ops = [LinearDoubleLayer(v, f) for v, f in layers]
+    sizes = [len(v) for v, _ in layers]
+    off = np.concatenate([[0], np.cumsum(sizes)])
+    n = int(off[-1])
+    a = np.empty((n, n))
+    omega_k1: dict[int, np.ndarray] = {}
+    omega_11 = None
+    for k, (vk, _) in enumerate(layers):
+        rsl = slice(off[k], off[k + 1])
+        for col, op in enumerate(ops):
+            w = _self_block(op, vk, threads) if k == col else op.weights(vk, threads=threads)
+            if col == 0:
+                if k == 0:
+                    omega_11 = w.copy()
+                else:
+                    omega_k1[k] = w.copy()
+            coef = (s_in[col] - s_out[col]) / (TWO_PI * (s_in[k] + s_out[k]))
+            blk = a[rsl, off[col]:off[col + 1]]
+            np.multiply(w, -coef, out=blk)
+            del w
+        a[rsl, rsl][np.diag_indices(sizes[k])] += 1.0  # basic slices: a view of a
+    a += 1.0 / n
+    n1, nl = sizes[0], sizes[-1]
+    scale = 2.0 / (s_in + s_out)
+    sel = np.eye(nl) if rows is None else np.asarray(rows, dtype=float)
+    pick = np.zeros((n, len(sel)))
+    pick[off[-2]:] = sel.T
+    lu = sla.lu_factor(a.T, overwrite_a=True, check_finite=False)
+    del a
+    rt = sla.lu_solve(lu, pick, check_finite=False, overwrite_b=True)  # (n, r) = (rows P_L A^-1)^T
+    if n_layers == 1:
+        return scale[0] * rt.T
+    del lu
+    rd = [rt[off[k]:off[k + 1]].T * scale[k] for k in range(n_layers)]  # blocks (n_L, n_k)
+    y = rd[0].copy()
+    for k in range(1, n_layers):
+        y += (rd[k] @ omega_k1[k]) / FOUR_PI
+    a1 = np.eye(n1) - omega_11 / TWO_PI + 1.0 / n1
+    z = sla.solve(a1.T, y.T, check_finite=False, overwrite_a=True).T
+    return (sig[1] / sig[0]) * (rd[0] - 2.0 * z)

@@ -1,0 +1,4 @@
+"""``python -m prep`` is ``headprep``."""
+from .cli import entry
+
+entry()
