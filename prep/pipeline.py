@@ -279,13 +279,13 @@ def step_forward(registry: Registry, recipe: Recipe, inputs: SubjectInputs, alig
         arrays["leadfield_free"] = fm.leadfield(centres, None).matrix
     if "leadfield" not in arrays:  # the passport and the bundle's accessors need the fixed one
         arrays["leadfield"] = np.einsum("nmk,mk->nm", arrays["leadfield_free"], normals)
-    state, state_arrays = fwd.forward_state(fm)
-    arrays.update({f"forward_{k}": v for k, v in state_arrays.items()})
+    state, state_arrays = fwd.forward_state(fm)      # ({"forward": {...}}, {"forward_<key>": array})
+    arrays.update(state_arrays)
     if conductor.kind == "layers":
         for i, s in enumerate(conductor.layers):
             arrays[f"layer{i}_vertices"] = s.vertices
             arrays[f"layer{i}_faces"] = s.faces
-    meta = {"forward": state, "head_model": conductor.describe()}
+    meta = {"forward": state["forward"], "head_model": conductor.describe()}
     return StepResult(meta=meta, arrays=arrays, findings=findings)
 
 
