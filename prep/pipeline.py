@@ -286,7 +286,7 @@ def step_forward(registry: Registry, recipe: Recipe, inputs: SubjectInputs, alig
         arrays["leadfield_free"] = fm.leadfield(centres, None).matrix
     if "leadfield" not in arrays:  # the passport and the bundle's accessors need the fixed one
         arrays["leadfield"] = np.einsum("nmk,mk->nm", arrays["leadfield_free"], normals)
-    state, state_arrays = fwd.forward_state(fm)
+    state, state_arrays = fwd.forward_state(fm)      # ({"forward": {...}}, {"forward_<key>": array})
     arrays.update(state_arrays)
     if conductor.kind == "layers":
         for i, s in enumerate(conductor.layers):
