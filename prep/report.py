@@ -199,7 +199,7 @@ class Assets:
 
 
 # ------------------------------------------------------------------ page
-def _verdict_block(findings: Sequence[Finding]) -> str:
+def _verdict_block(findings: Sequence[Finding], stored: Any = None) -> str:
     verdict = verdict_of(findings)
     counts = {s: sum(f.severity == s for f in findings) for s in ("fail", "warn", "info")}
     deciding = deciding_findings(findings)
@@ -211,6 +211,9 @@ def _verdict_block(findings: Sequence[Finding]) -> str:
     count_text = (f'<p class="counts"><span id="count-fail">{counts["fail"]}</span> failed, '
                   f'<span id="count-warn">{counts["warn"]}</span> to review, '
                   f'<span id="count-info">{counts["info"]}</span> notes.</p>')
+    if stored is not None and stored != verdict:
+        count_text += (f'<p class="absent">The bundle itself records the verdict "{esc(stored)}"; this page '
+                       f'recomputes it from the findings (fail beats review beats pass).</p>')
     return (f'<section class="verdict {verdict}" id="verdict" data-verdict="{verdict}" aria-labelledby="verdict-word">'
             f'<div class="verdict-head">{_shape(verdict, 56)}'
             f'<div><p class="kicker">Verdict</p><h2 id="verdict-word">{verdict.upper()}</h2>'
@@ -258,7 +261,7 @@ def build_report(bundle: Bundle, registry: Any) -> str:
             f'<meta name="viewport" content="width=device-width, initial-scale=1">'
             f'<link rel="icon" href="data:,">'
             f'<title>{esc(subject)}: {verdict_of(findings)} (headprep report)</title>'
-            f'<style>{_CSS}</style></head><body><main>{head}{_verdict_block(findings)}{nav}'
+            f'<style>{_CSS}</style></head><body><main>{head}{_verdict_block(findings, man.get("verdict"))}{nav}'
             f'{"".join(parts)}<footer>One self-contained page: every picture is inline and nothing '
             f'is fetched from a network.</footer></main></body></html>\n')
 
