@@ -8,14 +8,20 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Protocol
 
 import numpy as np
 
 from prep import render
 from prep.report import Assets
 
-from ._report_sections_data import Electrodes, Mesh
+
+class Mesh(Protocol):
+    """What is drawn of a mesh (``_report_sections_data.Mesh``; helpers do not import each other)."""
+
+    role: str
+    vertices: np.ndarray  # (n, 3) float64, metres
+    faces: np.ndarray  # (k, 3) int64
 
 #: view name -> (camera direction from the centre, view-up)
 VIEWS: dict[str, tuple[tuple[float, float, float], tuple[float, float, float]]] = {
@@ -69,11 +75,13 @@ def _start(p) -> None:  # noqa: ANN001
     p.show(auto_close=False, interactive=False)
 
 
-def electrode_views(assets: Assets, scalp: Mesh | None, el: Electrodes, limit_mm: float,
+def electrode_views(assets: Assets, scalp: Mesh | None, el: Any, limit_mm: float,
                     views: Sequence[str] = ("front", "left", "right", "top"),
                     headshape: np.ndarray | None = None) -> list[str]:
     """One ``<figure>`` per view: the scalp with electrodes coloured by signed distance (mm).
 
+    ``el`` is an ``Electrodes`` record of ``_report_sections_data`` (labels, drawn
+    positions, signed distances, flagged indices).
     Flagged electrodes are labelled by name. ``limit_mm`` is the symmetric colour limit.
     ``headshape`` (h, 3) metres, if given, is drawn as small dark points.
     """
