@@ -33,6 +33,8 @@ __all__ = ["VERDICTS", "Assets", "Markup", "verdict_of", "deciding_findings", "b
            "esc", "absent", "table", "severity_badge", "flatten", "fmt"]
 
 VERDICTS = ("pass", "review", "fail")
+#: how many deciding findings the verdict lists before "and N more"
+MAX_DECIDING = 8
 _SEVERITY_ORDER = {"fail": 0, "warn": 1, "info": 2}
 #: verdict -> the sentence under the verdict word
 _VERDICT_TEXT = {
@@ -205,7 +207,9 @@ def _verdict_block(findings: Sequence[Finding], stored: Any = None) -> str:
     deciding = deciding_findings(findings)
     items = "".join(
         f'<li>{severity_badge(f.severity)} <span class="msg">{esc(f.message)}</span> '
-        f'<code>{esc(f.code)}</code></li>' for f in deciding)
+        f'<code>{esc(f.code)}</code></li>' for f in deciding[:MAX_DECIDING])
+    if len(deciding) > MAX_DECIDING:
+        items += f"<li>and {len(deciding) - MAX_DECIDING} more of the same severity (see All findings).</li>"
     decide = (f'<p class="lead">What decides it:</p><ul class="deciding">{items}</ul>' if deciding
               else "")
     count_text = (f'<p class="counts"><span id="count-fail">{counts["fail"]}</span> failed, '

@@ -93,6 +93,18 @@ def test_verdict_rules() -> None:
     assert deciding_findings([_f("info")]) == []
 
 
+def test_verdict_lists_at_most_a_few_deciding_findings(sparse_bundle: Path, registry) -> None:  # noqa: ANN001
+    from prep.report import MAX_DECIDING
+
+    b = load_bundle(sparse_bundle)
+    many = [Finding(code="placement.off-scalp", severity="fail", message=f"electrode E{i:02d} is off")
+            for i in range(MAX_DECIDING + 3)]
+    b.manifest["findings"] = [f.to_dict() for f in many]
+    page = Page(build_report(b, registry))
+    assert "and 3 more of the same severity" in page.by_id["verdict"]
+    assert int(page.by_id["count-fail"]) == MAX_DECIDING + 3
+
+
 def test_assets_refuse_pictures_without_alt_text() -> None:
     png = b"\x89PNG\r\n\x1a\n" + b"\0" * 16
     with pytest.raises(ValueError, match="alt"):
@@ -190,7 +202,7 @@ def test_command_writes_page_and_exits_with_verdict(sparse_bundle: Path, tmp_pat
 
 
 def test_pass_verdict_exits_zero(tmp_path: Path, capsys) -> None:  # noqa: ANN001
-    bundle = make_synthetic_bundle(tmp_path / "clean", findings=[], **SPARSE)
+    bundle = make_synthetic_bundle(tmp_path / "clean.zip", findings=[], **SPARSE)  # a zipped bundle
     out = tmp_path / "clean.html"
     assert main(["report", str(bundle), "--out", str(out)]) == 0
     assert "verdict PASS" in capsys.readouterr().out
