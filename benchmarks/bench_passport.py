@@ -54,6 +54,7 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--sensors", type=int, default=128)
     ap.add_argument("--sources", type=int, default=20000)
+    ap.add_argument("--per-check", action="store_true", help="also time each check alone")
     args = ap.parse_args()
     lf, el = synthetic_leadfield(args.sensors, args.sources)
     reg = make_registry()
@@ -77,6 +78,12 @@ def main() -> None:
           f"median {res['peak_localisation_error']['p50_mm']:.1f} mm, "
           f"dispersion median {res['spatial_dispersion']['p50_mm']:.1f} mm")
     print("findings:", ", ".join(f.code for f in passport.findings) or "none")
+    if args.per_check:
+        for d in reg.descriptors("check"):
+            if d.target == "leadfield":
+                t2 = time.perf_counter()
+                d.run(leadfield=lf, sensor_positions=el, **d.defaults)
+                print(f"  {d.name:<22}{time.perf_counter() - t2:8.2f} s")
 
 
 if __name__ == "__main__":

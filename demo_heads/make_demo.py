@@ -22,6 +22,10 @@ same on every run. The anatomy frame is MRI-like (millimetres, +x right,
   jittered by digitizer noise and moved into a device frame by a known rigid
   transform (kept in ``truth.json``).
 
+Every surface is ``centre + r(u) u`` over a geodesic sphere with r > 0, so each
+flat triangle projects radially onto its own spherical triangle: the surfaces
+are closed, outward and cannot cross themselves.
+
 Before writing, the script checks the geometry with trimesh (watertight,
 outward, nested with the stated gaps, cortex inside the inner skull) and stops
 with a message naming the failed check.
@@ -66,9 +70,13 @@ FREQ = {"scalp": 28, "skull": 16, "cortex": 56}
 OUTER_SKULL_DEPTH = (6.0, 0.5)
 INNER_SKULL_DEPTH = (11.5, 0.7)
 #: gyral crowns stay this far (radially, about the skull's normal) inside the inner skull (mm)
-CORTEX_MARGIN = 5.0
+CORTEX_MARGIN = 6.0
 MIDLINE_GAP = 5.0          # mm between the two hemispheres' envelopes
 CORTEX_FLOOR = -40.0       # mm below HEAD_CENTRE: lowest cortical envelope
+#: the envelope also stays inside this ball (centre offset from HEAD_CENTRE, radius, mm): wider
+#: CSF at the frontal and occipital poles keeps every source inside the brain sphere of a
+#: default concentric-spheres model fitted to the cap (0.87 of its radius, about 72 mm here)
+CORTEX_BALL = (np.array([0.0, 1.5, 4.0]), 68.0)
 SULCUS_DEPTH = (12.5, 2.5)  # mm, mean and half-range
 SULCUS_WIDTH = 1.7         # mm, Gaussian sigma of the sulcal profile across its line
 
@@ -182,9 +190,11 @@ class HeadShape:
         return radius - depth / cos
 
     def outer_depth(self, u: np.ndarray) -> np.ndarray:
+        """Normal depth (mm) of the outer skull below the scalp along ``u``."""
         return OUTER_SKULL_DEPTH[0] + OUTER_SKULL_DEPTH[1] * (u @ self.outer_dir)
 
     def inner_depth(self, u: np.ndarray) -> np.ndarray:
+        """Normal depth (mm) of the inner skull below the scalp along ``u``."""
         return INNER_SKULL_DEPTH[0] + INNER_SKULL_DEPTH[1] * (u @ self.inner_dir)
 
 
@@ -237,7 +247,10 @@ def hemisphere(side: int, head: HeadShape, rng: np.random.Generator) -> trimesh.
         t_mid = np.where(toward_mid > 0, (30.0 - MIDLINE_GAP / 2) / toward_mid, np.inf)
         down = -dirs[:, 2]
         t_floor = np.where(down > 0, (10.0 - CORTEX_FLOOR) / down, np.inf)
-    t_env = _softmin(np.stack([t_skull, np.minimum(t_mid, 1e3), np.minimum(t_floor, 1e3)]), 3.0)
+    rel = centre - HEAD_CENTRE - CORTEX_BALL[0]
+    b = dirs @ rel
+    t_ball = -b + np.sqrt(b * b - (rel @ rel - CORTEX_BALL[1] ** 2))
+    t_env = _softmin(np.stack([t_skull, t_ball, np.minimum(t_mid, 1e3), np.minimum(t_floor, 1e3)]), 3.0)
 
     # sulci: narrow grooves along the zero set of a sum of plane waves
     p = centre + dirs * t_env[:, None]
@@ -330,6 +343,8 @@ def _check_closed(name: str, mesh: trimesh.Trimesh) -> None:
         raise DemoCheckError(f"{name}: not watertight")
     if not mesh.is_winding_consistent:
         raise DemoCheckError(f"{name}: inconsistent winding")
+    if mesh.euler_number != 2:
+        raise DemoCheckError(f"{name}: not a sphere-like surface (Euler number {mesh.euler_number})")
     if mesh.volume <= 0:
         raise DemoCheckError(f"{name}: negative volume (faces point inward)")
 

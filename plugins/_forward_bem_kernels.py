@@ -37,6 +37,14 @@ def _faces_scatter(faces: np.ndarray, n_vertices: int) -> list[sp.csr_matrix]:
     return [sp.csr_matrix((np.ones(k), (rows, faces[:, c])), shape=(k, n_vertices)) for c in range(3)]
 
 
+def _compiled():  # noqa: ANN202 - the numba kernel or None
+    try:
+        from ._forward_bem_jit import linear_weights
+    except ImportError:
+        return None
+    return linear_weights
+
+
 def _dot3(r: np.ndarray, m: np.ndarray) -> np.ndarray:
     """(b, 3) @ (3, k) by broadcasting: BLAS is slow for an inner size of 3."""
     return r[:, 0:1] * m[0] + r[:, 1:2] * m[1] + r[:, 2:3] * m[2]
@@ -81,24 +89,40 @@ class LinearDoubleLayer:
         self.edge_len_sq_face = [np.einsum("ij,ij->i", x[(e + 1) % 3] - x[e], x[(e + 1) % 3] - x[e])
                                  for e in range(3)]
         coef = np.zeros((3, 3, len(f)))
+        face_t = []
         for e in range(3):
             de = x[(e + 1) % 3] - x[e]
             le = np.linalg.norm(de, axis=1)
             te = np.divide(de, le[:, None], out=np.zeros_like(de), where=le[:, None] > 0)
+            face_t.append(te)
             m = np.cross(te, n)
             for c in range(3):
                 coef[c, e] = np.einsum("ij,ij->i", g[c], m)
         self.coef = coef
         self.scatter = _faces_scatter(f, len(v))
+        # per-face layout of the compiled kernel
+        self.jit_args = (np.ascontiguousarray(np.stack(x, axis=1)), np.ascontiguousarray(n),
+                         np.ascontiguousarray(np.stack(g, axis=1)),
+                         np.ascontiguousarray(np.stack(self.one_minus_gx, axis=1)),
+                         np.ascontiguousarray(coef.transpose(2, 0, 1)),
+                         np.ascontiguousarray(np.stack(face_t, axis=1)), f)
 
-    def weights(self, points: np.ndarray, block: int = 48, threads: int | None = None) -> np.ndarray:
+    def weights(self, points: np.ndarray, block: int = 24, threads: int | None = None,
+                backend: str = "auto") -> np.ndarray:
         """(m, n) float64: int psi_j dOmega_r for every point r (rows) and vertex j (columns).
 
         Pairs where r is a corner of the triangle (the triangle is seen edge-on)
-        contribute zero; the caller fixes the diagonal of a self block. Blocks of
-        rows run on ``threads`` threads (numpy releases the GIL in its loops).
+        contribute zero; the caller fixes the diagonal of a self block.
+        ``backend``: ``"numba"`` (compiled loop, parallel over points), ``"numpy"``
+        (row blocks on ``threads`` threads; numpy releases the GIL in its loops)
+        or ``"auto"`` (numba when importable).
         """
         p = np.ascontiguousarray(points, dtype=float)
+        compiled = _compiled() if backend in ("auto", "numba") else None
+        if backend == "numba" and compiled is None:
+            raise RuntimeError("backend 'numba' asked for but numba is not importable")
+        if compiled is not None:
+            return compiled(p, *self.jit_args, self.n_vertices)
         out = np.empty((len(p), self.n_vertices))
 
         def work(s: int) -> None:
@@ -142,7 +166,7 @@ class LinearDoubleLayer:
         omega += np.where(den < 0.0, np.where(num >= 0.0, 2.0 * np.pi, -2.0 * np.pi), 0.0)
         h = self.hn[None, :] - rm[:, k:2 * k]
         scale = np.maximum(n[0], np.maximum(n[1], n[2]))
-        corner = np.minimum(n[0], np.minimum(n[1], n[2])) <= 1e-9 * scale
+        corner = np.minimum(n[0], np.minimum(n[1], n[2])) <= 1e-6 * scale  # expanded distances lose digits
         ge = [gam[:, self.face_edge[e]] for e in range(3)]
         total = None
         for c in range(3):

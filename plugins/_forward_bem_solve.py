@@ -40,7 +40,7 @@ def _self_block(op: LinearDoubleLayer, vertices: np.ndarray, threads: int | None
 
 
 def transfer_to_scalp(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.ndarray,
-                      threads: int | None = None) -> np.ndarray:
+                      threads: int | None = None, rows: np.ndarray | None = None) -> np.ndarray:
     """Scalp potentials per unit infinite-medium potential on the inner layer.
 
     Parameters
@@ -48,10 +48,13 @@ def transfer_to_scalp(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.nda
     layers : list of (vertices (n_k, 3) metres, faces (f_k, 3) int64), inside -> out, outward
     sigma : (L,) float64, S/m, conductivity inside each layer
     threads : int or None
+    rows : (r, n_L) float64 or None
+        Combinations of outer-layer vertices wanted (e.g. the electrodes'
+        barycentric weights); None for every outer vertex (identity).
 
     Returns
     -------
-    (n_L, n_1) float64, V per (V*S/m): ``V_outer = T @ g_inner`` with g the
+    (r, n_1) float64, V per (V*S/m): ``V_outer = T @ g_inner`` with g the
     unit-conductivity potential p.(r - r0) / (4 pi |r - r0|^3) at the inner
     layer's vertices. Defined up to a constant per column (reference it).
     """
@@ -67,7 +70,7 @@ def transfer_to_scalp(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.nda
     omega_k1: dict[int, np.ndarray] = {}
     omega_11 = None
     for k, (vk, _) in enumerate(layers):
-        rows = slice(off[k], off[k + 1])
+        rsl = slice(off[k], off[k + 1])
         for col, op in enumerate(ops):
             w = _self_block(op, vk, threads) if k == col else op.weights(vk, threads=threads)
             if col == 0:
@@ -76,22 +79,21 @@ def transfer_to_scalp(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.nda
                 else:
                     omega_k1[k] = w.copy()
             coef = (s_in[col] - s_out[col]) / (TWO_PI * (s_in[k] + s_out[k]))
-            blk = a[rows, off[col]:off[col + 1]]
+            blk = a[rsl, off[col]:off[col + 1]]
             np.multiply(w, -coef, out=blk)
             del w
-        a[rows, rows][np.diag_indices(sizes[k])] += 1.0  # basic slices: a view of a
+        a[rsl, rsl][np.diag_indices(sizes[k])] += 1.0  # basic slices: a view of a
     a += 1.0 / n
     n1, nl = sizes[0], sizes[-1]
     scale = 2.0 / (s_in + s_out)
-    if n_layers == 1:
-        lu = sla.lu_factor(a.T, overwrite_a=True, check_finite=False)
-        rt = sla.lu_solve(lu, np.eye(n), check_finite=False)  # (A^T)^-1 = (A^-1)^T
-        return scale[0] * rt.T
+    sel = np.eye(nl) if rows is None else np.asarray(rows, dtype=float)
+    pick = np.zeros((n, len(sel)))
+    pick[off[-2]:] = sel.T
     lu = sla.lu_factor(a.T, overwrite_a=True, check_finite=False)
     del a
-    pick = np.zeros((n, nl))
-    pick[off[-2] + np.arange(nl), np.arange(nl)] = 1.0
-    rt = sla.lu_solve(lu, pick, check_finite=False, overwrite_b=True)  # (n, n_L) = (P_L A^-1)^T
+    rt = sla.lu_solve(lu, pick, check_finite=False, overwrite_b=True)  # (n, r) = (rows P_L A^-1)^T
+    if n_layers == 1:
+        return scale[0] * rt.T
     del lu
     rd = [rt[off[k]:off[k + 1]].T * scale[k] for k in range(n_layers)]  # blocks (n_L, n_k)
     y = rd[0].copy()

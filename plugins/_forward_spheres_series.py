@@ -16,8 +16,10 @@ potential is (de Munck & Peters 1993, isotropic case of Zhang 1995)::
 sphere). ``D_n`` comes from a 2x2 transfer-matrix recursion across the
 interfaces (:func:`shell_weights`). For large ``n``,
 ``c_n -> c_inf + alpha / (2n+1) + O(n^-2)``; the two leading parts are summed in
-closed form (:func:`closed_form_sums`) and only the remainder series is summed
-term by term until converged.
+closed form (:func:`closed_form_part`) and only the remainder series is summed,
+up to the degree where an a-priori bound of what is left falls below the
+tolerance (:func:`remainder_sums`: on a grid of angles by matrix products, then
+interpolated to the electrodes).
 """
 from __future__ import annotations
 
@@ -80,13 +82,13 @@ def asymptote(conductivities: F64) -> tuple[float, float]:
     return c_inf, alpha
 
 
-def closed_form_sums(f: F64, t: F64) -> tuple[F64, F64, F64, F64]:
-    """Closed forms of the homogeneous and first-correction series (``f > 0``).
+def closed_form_part(f: F64, t: F64, c_inf: float, alpha: float) -> tuple[F64, F64]:
+    """``c_inf H1 + alpha A1`` and ``c_inf H2 + alpha A2``: the summed tail of ``S1`` and ``S2`` (``f > 0``).
 
     With ``d = sqrt(1 - 2 f t + f^2)`` (generating function of P_n) and
     ``L = sum_n f^n P_n / n = log(2 / (1 - f t + d))``:
 
-    - ``H1 = sum (2n+1) f^(n-1) P_n    = (2 (t - f)/d^3 + 1/d - 1) / f``
+    - ``H1 = sum (2n+1) f^(n-1) P_n    = 2 (t - f)/d^3 + A1``
     - ``H2 = sum (2n+1)/n f^(n-1) P_n' = 2/d^3 + A2``
     - ``A1 = sum f^(n-1) P_n           = (1/d - 1) / f``
     - ``A2 = sum f^(n-1) P_n' / n      = (d + 1) / (d (1 - f t + d))``
@@ -96,19 +98,31 @@ def closed_form_sums(f: F64, t: F64) -> tuple[F64, F64, F64, F64]:
     Parameters
     ----------
     f, t : broadcastable float64 arrays, 0 < f < 1, -1 <= t <= 1
+    c_inf, alpha : float
+        From :func:`asymptote`.
 
     Returns
     -------
-    H1, H2, A1, A2 : float64 arrays of the broadcast shape
+    B1, B2 : float64 arrays of the broadcast shape
     """
-    d = np.sqrt(1.0 - 2.0 * f * t + f * f)
+    d = 1.0 - 2.0 * f * t
+    d += f * f
+    np.sqrt(d, out=d)
     inv_d = 1.0 / d
-    inv_d3 = inv_d * inv_d * inv_d
-    a1 = (inv_d - 1.0) / f
-    a2 = (d + 1.0) * inv_d / (1.0 - f * t + d)
-    h1 = 2.0 * (t - f) * inv_d3 + a1
-    h2 = 2.0 * inv_d3 + a2
-    return h1, h2, a1, a2
+    g = inv_d * inv_d
+    g *= inv_d
+    g *= 2.0 * c_inf                                   # 2 c_inf / d^3
+    ca = c_inf + alpha
+    a2 = d + 1.0
+    a2 *= inv_d
+    a2 /= 1.0 - f * t + d
+    a2 *= ca
+    inv_d -= 1.0
+    inv_d *= ca / f                                    # (c_inf + alpha) A1
+    base1 = g * (t - f)
+    base1 += inv_d
+    g += a2
+    return base1, g
 
 
 def weights_for(radii: F64, conductivities: F64, f_max: float, tol: float) -> tuple[F64, F64, float, float]:
@@ -164,16 +178,16 @@ def _degree_and_grid(w: F64, f: float, budget: float) -> tuple[int, int]:
 
 
 def _legendre_tables(t: F64, n_deg: int) -> tuple[F64, F64]:
-    """``P_n(t)`` and ``P_n'(t)`` for ``n = 1..n_deg`` at (K,) points: two (K, n_deg) arrays."""
-    p = np.empty((len(t), n_deg + 1))
+    """``P_n(t)`` and ``P_n'(t)`` for ``n = 1..n_deg`` at (K,) points: two (n_deg, K) arrays."""
+    p = np.empty((n_deg + 1, len(t)))
     dp = np.empty_like(p)
-    p[:, 0], dp[:, 0] = 1.0, 0.0
+    p[0], dp[0] = 1.0, 0.0
     if n_deg >= 1:
-        p[:, 1], dp[:, 1] = t, 1.0
+        p[1], dp[1] = t, 1.0
     for n in range(1, n_deg):
-        p[:, n + 1] = ((2 * n + 1) * t * p[:, n] - n * p[:, n - 1]) / (n + 1)
-        dp[:, n + 1] = t * dp[:, n] + (n + 1) * p[:, n]
-    return p[:, 1:], dp[:, 1:]
+        p[n + 1] = ((2 * n + 1) * t * p[n] - n * p[n - 1]) / (n + 1)
+        dp[n + 1] = t * dp[n] + (n + 1) * p[n]
+    return p[1:], dp[1:]
 
 
 def remainder_sums(f: F64, t: F64, w: F64, budget: float) -> tuple[F64, F64]:
@@ -208,8 +222,8 @@ def remainder_sums(f: F64, t: F64, w: F64, budget: float) -> tuple[F64, F64]:
     coef1 = (2 * deg + 1) * w[1:n_deg + 1, None] * f[None, :] ** (deg - 1)   # (N, m); 0**0 = 1
     # (m, nodes + 4): one source per row, so the gathers below stay within a row
     # (m, nodes + 4): one source per row, so each gather below stays within a row
-    grid1 = coef1.T @ ptab.T
-    grid2 = (coef1 / deg).T @ dptab.T
+    grid1 = coef1.T @ ptab
+    grid2 = (coef1 / deg).T @ dptab
     tt = t.T                                            # (m, n)
     u = np.arccos(tt) / h
     k0 = np.minimum(np.floor(u), nodes - 1)
@@ -222,9 +236,8 @@ def remainder_sums(f: F64, t: F64, w: F64, budget: float) -> tuple[F64, F64]:
     r1 = np.zeros_like(tt)
     r2 = np.zeros_like(tt)
     for j, wj in enumerate(weights):
-        idx = flat + j
-        r1 += wj * g1[idx]
-        r2 += wj * g2[idx]
+        r1 += wj * np.take(g1[j:], flat)             # shifted views: no index arithmetic per node
+        r2 += wj * np.take(g2[j:], flat)
     return r1.T, r2.T
 
 
@@ -273,10 +286,9 @@ def chunk_potentials(dirs: F64, src: F64, normals: F64 | None, weights: tuple[F6
             continue
         tc = t[:, cols]
         if accelerated:
-            h1, h2, a1, a2 = closed_form_sums(fc[None, :], tc)
-            base1 = c_inf * h1 + alpha * a1
-            base2 = c_inf * h2 + alpha * a2
-            scale = float((np.abs(base1) + np.abs(base2) * np.sqrt(1.0 - tc * tc)).max(axis=0).min())
+            base1, base2 = closed_form_part(fc[None, :], tc, c_inf, alpha)
+            # a lower bound of each source's scale (the S2 term left out): conservative
+            scale = float(np.abs(base1).max(axis=0).min())
             r1, r2 = remainder_sums(fc, tc, delta, tol * scale)
             s1[:, cols] = base1 + r1
             s2[:, cols] = base2 + r2

@@ -85,7 +85,7 @@ def _starts(points: np.ndarray, fids: Mapping[str, np.ndarray], vertices: np.nda
         for pitch in (-20.0, 0.0, 20.0):
             rotations.append(rotvec_to_matrix([np.radians(pitch), 0, 0]) @ base)
         nose = fids["nasion"] - points.mean(axis=0)
-        rotations = [r for r in rotations if (r @ nose)[1] > 0]
+        rotations = [r for r in rotations if (r @ nose)[1] > 0] or rotations
     starts = []
     for rot in rotations:
         moved = points @ rot.T
@@ -95,15 +95,27 @@ def _starts(points: np.ndarray, fids: Mapping[str, np.ndarray], vertices: np.nda
     return starts
 
 
+def _facing(matrix: np.ndarray, points: np.ndarray, fids: Mapping[str, np.ndarray]) -> bool:
+    """Whether the digitized nasion ends up anterior (+y) and the points above the ears (+z)."""
+    if not all(n in fids for n in FIDUCIALS):
+        return True
+    lin = matrix[:3, :3]
+    nose = lin @ (fids["nasion"] - points.mean(axis=0))
+    up = lin @ (points.mean(axis=0) - (fids["lpa"] + fids["rpa"]) / 2)
+    return bool(nose[1] > 0 and up[2] > 0)
+
+
 def _search(points: np.ndarray, fids: Mapping[str, np.ndarray], q: SurfaceQuery, vertices: np.ndarray,
             icp_kw: dict) -> np.ndarray:
-    best, best_cost = None, np.inf
+    sub = np.linspace(0, len(points) - 1, min(len(points), 150)).astype(int)  # an even subsample is enough here
+    kw = {**icp_kw, "groups": icp_kw["groups"][sub], "max_iter": 15}
+    found = []
     for start in _starts(points, fids, vertices):
-        res = robust_icp(points, q.query, q.normals.__getitem__, start, **{**icp_kw, "max_iter": 15})
+        res = robust_icp(points[sub], q.query, q.normals.__getitem__, start, **kw)
         cost = float(np.mean(np.minimum(np.abs(res.distances), 0.02)))
-        if cost < best_cost:
-            best, best_cost = res.matrix, cost
-    return best
+        found.append((not _facing(res.matrix, points, fids), cost, len(found), res.matrix))
+    # a symmetric head fits as well turned around: the nose decides, then the fit
+    return min(found, key=lambda f: f[:3])[3]
 
 
 def align(sensors: Sensors, scalp: Surface, anatomy_fiducials: Mapping[str, np.ndarray] | None, *,
@@ -151,6 +163,8 @@ def align(sensors: Sensors, scalp: Surface, anatomy_fiducials: Mapping[str, np.n
         rot, t, _ = absolute_orientation(src, dst)
         init = rigid_matrix(rot, t)
         icp_kw.update(landmarks=src, landmark_targets=dst)
+        if len(points) < min_points:
+            return _fiducials_only(sensors, scalp, init, pre, pair, len(points), findings)
     else:
         if len(points) < min_points or _head_axes(fids) is None:
             raise too_few_points(f"{len(points)} surface point(s) and no nasion/LPA/RPA in both frames",
@@ -195,6 +209,24 @@ def align(sensors: Sensors, scalp: Surface, anatomy_fiducials: Mapping[str, np.n
     transform = Transform(matrix=matrix, from_frame=sensors.frame, to_frame=scalp.frame, method="surface-fit",
                           residuals={"rms_m": rms, "fre_m": fre})
     return Alignment(transform=transform, findings=tuple(findings), headshape_inliers=inliers_hs, metrics=metrics)
+
+
+def _fiducials_only(sensors: Sensors, scalp: Surface, init: np.ndarray, pre: np.ndarray, pair: tuple,
+                    n_points: int, findings: list[Finding]) -> Alignment:
+    """Too few surface points to fit: the fiducial alignment, said so."""
+    src, dst, names = pair
+    d = np.linalg.norm(src @ init[:3, :3].T + init[:3, 3] - dst, axis=1)
+    fre = float(np.sqrt(np.mean(d ** 2)))
+    findings = [*findings, Finding(
+        code="input.too-few-points", severity="warn", source=SOURCE,
+        message=f"only {n_points} head-shape point(s) and electrode(s): the surface fit was skipped and the "
+                "fiducials alone give the transform")]
+    transform = Transform(matrix=init @ pre, from_frame=sensors.frame, to_frame=scalp.frame, method="fiducials",
+                          residuals={"fre_m": fre})
+    return Alignment(transform=transform, findings=tuple(findings), headshape_inliers=None,
+                     metrics={"rms_m": None, "fre_m": fre, "fiducial_residuals_m": dict(zip(names, d.tolist())),
+                              "n_points": n_points, "start": "fiducials", "uncertainty": {},
+                              "mirrored": bool(pre[0, 0] < 0)})
 
 
 def _outlier_findings(inliers: np.ndarray, finite: np.ndarray, dist: np.ndarray, warn_fraction: float) -> list:

@@ -96,7 +96,7 @@ def check_spectrum(*, leadfield: LeadField, sensor_positions: np.ndarray, snr: f
     found = []
     if rank < expected:
         found.append(_finding(
-            "leadfield.rank-deficient", "warn",
+            "leadfield.rank-deficient", "fail",
             f"numerical rank {rank} is below the expected {expected} (n_sensors - 1 = {n - 1}, "
             f"{k} columns): some sensors carry no independent information (duplicates or a dead row?)",
             "spectrum", values={"numerical_rank": rank}, threshold=expected))
@@ -159,7 +159,7 @@ def check_reference(*, leadfield: LeadField, sensor_positions: np.ndarray, max_c
 
 
 def check_sensors(*, leadfield: LeadField, sensor_positions: np.ndarray, max_row_correlation: float,
-                  min_distance: float, **_: Any) -> CheckReport:
+                  min_sensor_distance_m: float, **_: Any) -> CheckReport:
     """``leadfield.duplicate-sensors``: rows correlated above a limit or electrodes too close."""
     if not _finite(leadfield):
         return _skipped(_NONFINITE)
@@ -174,14 +174,15 @@ def check_sensors(*, leadfield: LeadField, sensor_positions: np.ndarray, max_row
     iu, ju = np.triu_indices(m.shape[0], k=1)
     hit = corr[iu, ju] > max_row_correlation
     pairs_corr = [(int(i), int(j)) for i, j in zip(iu[hit], ju[hit])]
-    pairs_dist = sorted(cKDTree(pos).query_pairs(min_distance)) if len(pos) > 1 else []
+    tree = cKDTree(pos) if len(pos) > 1 else None
+    pairs_dist = sorted(tree.query_pairs(min_sensor_distance_m)) if tree is not None else []
     metrics = {"max_row_correlation": float(corr[iu, ju].max()) if iu.size else 0.0,
-               "min_sensor_distance": float(cKDTree(pos).query(pos, k=2)[0][:, 1].min()) if len(pos) > 1 else None,
+               "min_sensor_distance_m": float(tree.query(pos, k=2)[0][:, 1].min()) if tree is not None else None,
                "correlated_pairs": [[labels[i], labels[j]] for i, j in pairs_corr],
                "close_pairs": [[labels[i], labels[j]] for i, j in pairs_dist]}
     found = []
     for kind, pairs, limit in (("lead-field rows correlated above", pairs_corr, max_row_correlation),
-                               ("electrodes closer than", pairs_dist, min_distance)):
+                               ("electrodes closer than", pairs_dist, min_sensor_distance_m)):
         if pairs:
             names = [f"{labels[i]}/{labels[j]}" for i, j in pairs]
             unit = " m" if "closer" in kind else ""
@@ -195,7 +196,7 @@ def check_sensors(*, leadfield: LeadField, sensor_positions: np.ndarray, max_row
 
 
 def check_depth(*, leadfield: LeadField, sensor_positions: np.ndarray, depth_measure: str,
-                max_ratio: float, **_: Any) -> CheckReport:
+                max_depth_ratio: float, **_: Any) -> CheckReport:
     """``leadfield.depth-bias``: column norm against source depth.
 
     The ratio of the median column norm of the most superficial decile of
@@ -216,23 +217,23 @@ def check_depth(*, leadfield: LeadField, sensor_positions: np.ndarray, depth_mea
     metrics = {"depth_measure": depth_measure, "ratio": ratio, "superficial_depth_m": float(lo),
                "deep_depth_m": float(hi), "superficial_median_norm": float(sup), "deep_median_norm": float(deep)}
     found = []
-    if ratio > max_ratio:
+    if ratio > max_depth_ratio:
         found.append(_finding(
             "leadfield.depth-bias", "warn",
             f"the most superficial tenth of the sources (depth <= {lo * 1e3:.0f} mm) has {ratio:.3g} times "
-            f"the lead-field norm of the deepest tenth (depth >= {hi * 1e3:.0f} mm); limit {max_ratio:g}: "
+            f"the lead-field norm of the deepest tenth (depth >= {hi * 1e3:.0f} mm); limit {max_depth_ratio:g}: "
             f"an unweighted minimum-norm estimate will favour superficial sources", "depth",
-            values={"ratio": ratio}, threshold=max_ratio))
+            values={"ratio": ratio}, threshold=max_depth_ratio))
     return CheckReport(findings=tuple(found), metrics=metrics,
                        arrays={"column_norm": norms, "source_depth": depth})
 
 
-def check_resolution(*, leadfield: LeadField, sensor_positions: np.ndarray, snr: float, chunk: int,
-                     max_median_peak_error: float, max_median_dispersion: float, **_: Any) -> CheckReport:
+def check_resolution(*, leadfield: LeadField, sensor_positions: np.ndarray, snr: float, psf_chunk: int,
+                     max_median_peak_error_m: float, max_median_dispersion_m: float, **_: Any) -> CheckReport:
     """``leadfield.resolution``: point-spread functions of Tikhonov minimum norm at ``snr``.
 
     lambda^2 = trace(L L^T) / (n_sensors SNR^2) (common practice); the
-    resolution matrix is handled through the thin SVD, ``chunk`` columns at a
+    resolution matrix is handled through the thin SVD, ``psf_chunk`` columns at a
     time (Hauk, Wakeman & Henson 2011; Hauk et al. 2019).
     """
     if not _finite(leadfield):
@@ -240,21 +241,21 @@ def check_resolution(*, leadfield: LeadField, sensor_positions: np.ndarray, snr:
     m, group = _matrix(leadfield)
     _u, s, vt = thin_svd(m)
     lambda2 = tikhonov_lambda2(s, m.shape[0], snr)
-    ple, sd = psf_metrics(vt, filter_factors(s, lambda2), leadfield.source_positions, group=group, chunk=chunk)
+    ple, sd = psf_metrics(vt, filter_factors(s, lambda2), leadfield.source_positions, group=group, chunk=psf_chunk)
     pcts = (10.0, 50.0, 90.0)
     metrics = {"snr": snr, "lambda2": lambda2, "peak_localisation_error": _pct(ple, pcts),
                "spatial_dispersion": _pct(sd, pcts), "n_sources": int(ple.size)}
     med_ple, med_sd = float(np.nanmedian(ple)), float(np.nanmedian(sd))
     found = []
-    if med_ple > max_median_peak_error or med_sd > max_median_dispersion:
+    if med_ple > max_median_peak_error_m or med_sd > max_median_dispersion_m:
         found.append(_finding(
             "leadfield.resolution", "warn",
             f"minimum-norm point-spread functions at SNR {snr:g}: median peak localisation error "
-            f"{med_ple * 1e3:.1f} mm (limit {max_median_peak_error * 1e3:.0f} mm), median spatial dispersion "
-            f"{med_sd * 1e3:.1f} mm (limit {max_median_dispersion * 1e3:.0f} mm)", "resolution",
+            f"{med_ple * 1e3:.1f} mm (limit {max_median_peak_error_m * 1e3:.0f} mm), median spatial dispersion "
+            f"{med_sd * 1e3:.1f} mm (limit {max_median_dispersion_m * 1e3:.0f} mm)", "resolution",
             values={"median_peak_error_m": med_ple, "median_dispersion_m": med_sd},
-            threshold={"max_median_peak_error": max_median_peak_error,
-                       "max_median_dispersion": max_median_dispersion}))
+            threshold={"max_median_peak_error_m": max_median_peak_error_m,
+                       "max_median_dispersion_m": max_median_dispersion_m}))
     return CheckReport(findings=tuple(found), metrics=metrics,
                        arrays={"peak_localisation_error": ple, "spatial_dispersion": sd})
 
@@ -273,12 +274,12 @@ def headprep_register_checks() -> list[Check]:
               defaults={"max_column_sum": 1e-6}),
         Check(name="leadfield-sensors", target="leadfield", run=check_sensors,
               description="near-duplicate sensors: correlated rows or electrodes too close",
-              defaults={"max_row_correlation": 0.999, "min_distance": 0.005}),
+              defaults={"max_row_correlation": 0.999, "min_sensor_distance_m": 0.005}),
         Check(name="leadfield-depth", target="leadfield", run=check_depth,
               description="column norm against source depth (superficial / deep decile ratio)",
-              defaults={"depth_measure": "nearest-sensor", "max_ratio": 50.0}),
+              defaults={"depth_measure": "nearest-sensor", "max_depth_ratio": 50.0}),
         Check(name="leadfield-resolution", target="leadfield", run=check_resolution,
               description="minimum-norm point-spread functions: peak localisation error and dispersion",
-              defaults={"snr": 3.0, "chunk": 1024, "max_median_peak_error": 0.03,
-                        "max_median_dispersion": 0.04}),
+              defaults={"snr": 3.0, "psf_chunk": 1024, "max_median_peak_error_m": 0.03,
+                        "max_median_dispersion_m": 0.04}),
     ]

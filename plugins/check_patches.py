@@ -4,6 +4,7 @@ from __future__ import annotations
 from prep import hookimpl
 from prep.descriptors import Check, CheckReport
 from prep.geometry.clearance import DEFAULT_MIN_DISTANCE_MM, clearance_findings, surface_clearance
+from prep.errors import UsageError
 from prep.model import Patches, Surface
 
 
@@ -29,7 +30,7 @@ def run(patches: Patches, inner_skull: Surface | None = None,
     if inner_skull is None or len(patches) == 0:
         return CheckReport(metrics={"checked": False})
     if inner_skull.frame != patches.frame:
-        raise ValueError(f"inner skull is in frame {inner_skull.frame!r}, patches in {patches.frame!r}")
+        raise UsageError(f"inner skull is in frame {inner_skull.frame!r}, patches in {patches.frame!r}")
     inside, dist = surface_clearance(patches.centres, inner_skull.vertices, inner_skull.faces)
     findings = clearance_findings(inside, dist, min_distance_mm=min_distance_mm, excluded=False,
                                   source="check 'patches'")

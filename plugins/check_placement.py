@@ -209,7 +209,11 @@ def run(sensors: Sensors, scalp: Surface, fiducials: Mapping[str, np.ndarray] | 
         proj[finite], d[finite], _ = closest_points(scalp.vertices, scalp.faces, pos[finite])
     findings = _distance_findings(labels, d, off_warn=off_scalp_warn_m, off_fail=off_scalp_fail_m,
                                   inside=inside_scalp_warn_m, misfit=misfit_median_m)
-    mirrored = _mirror(labels, proj, _lateral_axis(fiducials, reference), mirror_fraction, lateral_min_m)
+    axis = _lateral_axis(fiducials, reference)
+    if axis is None:
+        findings.append(Finding(code="placement.unchecked", severity="info", source=SOURCE,
+                                message="no LPA/RPA and no reference layout: left-right mirroring was not checked"))
+    mirrored = _mirror(labels, proj, axis, mirror_fraction, lateral_min_m)
     if mirrored is not None:
         findings.append(mirrored)
     elif reference is not None:

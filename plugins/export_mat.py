@@ -7,7 +7,8 @@ its own name (``leadfield``, ``sensor_positions``, ``source_positions``,
 ``source_normals``...; same shapes as in the bundle, SI units),
 ``sensor_labels`` (a cell array of char in v5, a space-padded char matrix in
 v7.3), ``frame``, ``reference``, ``leadfield_unit`` and ``manifest_json``
-(the bundle's whole manifest as JSON text). See ``docs/bundle-format.md``.
+(the bundle's whole manifest as JSON text). Boolean arrays become ``uint8``
+in v5 (scipy's choice) and ``logical`` in v7.3. See ``docs/bundle-format.md``.
 """
 from __future__ import annotations
 

@@ -76,11 +76,11 @@ def layer_key(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.ndarray) ->
     return h.hexdigest()
 
 
-def _layer_solution(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.ndarray, *, cache: bool,
+def _layer_solution(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.ndarray, *,
                     cache_dir: str, threads: int) -> tuple[np.ndarray, str, bool]:
     key = layer_key(layers, sigma)
     path = (Path(cache_dir) if cache_dir else default_cache_dir()) / f"layers-{key[:32]}.npy"
-    if cache and path.is_file():
+    if path.is_file():
         try:
             arr = np.load(path, allow_pickle=False)
             if arr.shape == (len(layers[-1][0]), len(layers[0][0])):
@@ -88,13 +88,12 @@ def _layer_solution(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.ndarr
         except (OSError, ValueError):
             pass  # a damaged cache entry is recomputed and overwritten
     t = transfer_to_scalp(layers, sigma, threads=threads or None)
-    if cache:
-        buf = io.BytesIO()
-        np.save(buf, t, allow_pickle=False)
-        try:
-            write_bytes_atomic(path, buf.getvalue())
-        except OSError:
-            pass  # an unwritable cache only costs time; the result is still returned
+    buf = io.BytesIO()
+    np.save(buf, t, allow_pickle=False)
+    try:
+        write_bytes_atomic(path, buf.getvalue())
+    except OSError:
+        pass  # an unwritable cache only costs time; the result is still returned
     return t, key, False
 
 
@@ -173,10 +172,15 @@ def build(conductor: VolumeConductor, sensor_labels: tuple[str, ...], sensor_pos
         raise UsageError("bem: the volume conductor must be nested layers (inner skull, outer skull, scalp)")
     sigma = _conductivities(conductor, preset)
     layers = [(np.asarray(s.vertices), np.asarray(s.faces)) for s in conductor.layers]
-    t_scalp, key, hit = _layer_solution(layers, sigma, cache=cache, cache_dir=cache_dir, threads=threads)
     labels = tuple(sensor_labels)
     e, projected = interpolation_matrix(sensor_positions, *layers[-1])
-    transfer = _referenced(e @ t_scalp, labels, reference)
+    if cache:
+        t_scalp, key, hit = _layer_solution(layers, sigma, cache_dir=cache_dir, threads=threads)
+        t_e = e @ t_scalp
+    else:  # only the electrodes' rows: a solve with n_electrodes right-hand sides, not n_scalp
+        key, hit = layer_key(layers, sigma), False
+        t_e = transfer_to_scalp(layers, sigma, threads=threads or None, rows=e)
+    transfer = _referenced(t_e, labels, reference)
     if preset:
         conductor = VolumeConductor(kind="layers", conductivities=sigma, layers=conductor.layers,
                                     frame=conductor.frame)

@@ -26,9 +26,9 @@ from . import _forward_spheres_series as series
 
 NAME = "spheres"
 DEFAULTS: dict[str, Any] = {
-    "tolerance": 1e-8,       # relative to the largest |V| of a source over the electrodes
+    "tolerance": 1e-7,       # relative to the largest |V| of a source over the electrodes
     "workers": 0,            # threads; 0 = up to 4, bounded by the CPU count
-    "chunk_elements": 262144,  # electrodes x sources per block of work (bounds memory)
+    "chunk_elements": 65536,  # electrodes x sources per block of work (bounds memory)
 }
 
 
@@ -86,9 +86,12 @@ def _make_evaluate(conductor: VolumeConductor, dirs: np.ndarray, ref_row: int | 
         order = np.argsort(b, kind="stable")
         blocks = [order[i:i + per_chunk] for i in range(0, m, per_chunk)]
 
+        flat = out.reshape(len(dirs), -1)          # a view: scatter single values, ~3x faster than (.., 3) rows
+
         def one(idx: np.ndarray) -> None:
-            out[:, idx] = series.chunk_potentials(dirs, src[idx], None if nrm is None else nrm[idx],
-                                                  weights, radius, tol)
+            block = series.chunk_potentials(dirs, src[idx], None if nrm is None else nrm[idx], weights, radius, tol)
+            cols = idx if nrm is not None else (3 * idx[:, None] + np.arange(3)).ravel()
+            flat[:, cols] = block.reshape(len(dirs), -1)
 
         if workers == 1 or len(blocks) == 1:
             for idx in blocks:
@@ -129,6 +132,13 @@ def build(conductor: VolumeConductor, sensor_labels: Sequence[str], sensor_posit
         ``evaluate(positions (m,3), normals (m,3) or None)`` gives (n, m) or
         (n, m, 3) V/(A*m) against ``reference``.
     """
+    return _build(conductor, sensor_labels, sensor_positions, reference, options, None)
+
+
+def _build(conductor: VolumeConductor, sensor_labels: Sequence[str], sensor_positions: np.ndarray,
+           reference: str, options: Mapping[str, Any], stored: Mapping[str, np.ndarray] | None,
+           ) -> ForwardModel:
+    """Common part of :func:`build` and :func:`restore`."""
     if conductor.kind != "spheres":
         raise UsageError(f"the '{NAME}' forward solver needs a concentric-spheres conductor, "
                          f"got kind '{conductor.kind}'")
@@ -139,19 +149,24 @@ def build(conductor: VolumeConductor, sensor_labels: Sequence[str], sensor_posit
     if not 0 < float(params["tolerance"]) < 1:
         raise UsageError(f"forward solver '{NAME}': tolerance must be in (0, 1), got {params['tolerance']}")
     labels = tuple(sensor_labels)
-    dirs, projected = _project(conductor, sensor_positions)
+    given = (stored or {}).get("directions")
+    if given is not None and np.shape(given) == np.shape(sensor_positions):
+        dirs = np.asarray(given, dtype=np.float64)           # restored: bit-identical to the original build
+        projected = np.asarray(sensor_positions, dtype=np.float64)
+    else:
+        dirs, projected = _project(conductor, sensor_positions)
     ref_row = _reference_row(labels, reference)
     return ForwardModel(solver=NAME, conductor=conductor, sensor_labels=labels, sensor_positions=projected,
                         evaluate=_make_evaluate(conductor, dirs, ref_row, params), reference=reference,
-                        params=params, arrays={}, frame=conductor.frame)
+                        params=params, arrays={"directions": dirs}, frame=conductor.frame)
 
 
 def restore(*, conductor: VolumeConductor, sensor_labels: Sequence[str], sensor_positions: np.ndarray,
             reference: str = "average", params: Mapping[str, Any] | None = None,
             arrays: Mapping[str, np.ndarray] | None = None) -> ForwardModel:
-    """Rebuild a model from what a bundle stored (the sphere model keeps no arrays)."""
+    """Rebuild a model from what a bundle stored (``arrays["directions"]``: unit electrode directions)."""
     opts = {k: v for k, v in dict(params or {}).items() if k in DEFAULTS}
-    return build(conductor, sensor_labels, sensor_positions, reference=reference, **opts)
+    return _build(conductor, sensor_labels, sensor_positions, reference, opts, arrays)
 
 
 @hookimpl

@@ -20,6 +20,10 @@ from prep import InverseProblem, InverseSolver, SourceEstimate, UsageError, hook
 from prep.geometry.linear_inverse import whitener
 
 
+#: cost of a trial position the forward model refuses (a residual variance is at most 1)
+OUTSIDE = 2.0
+
+
 def _residual_variance(gw: np.ndarray, yw: np.ndarray) -> tuple[float, np.ndarray]:
     """Residual variance of the best moment for a whitened gain (n, 3) and data (n, t)."""
     moment, *_ = np.linalg.lstsq(gw, yw, rcond=None)
@@ -60,7 +64,10 @@ def solve_dipole(problem: InverseProblem, *, refine: bool = True, max_iterations
             raise UsageError("the forward model's sensors differ from the lead field's")
 
         def cost(p: np.ndarray) -> float:
-            g = fwd.leadfield(p[None, :]).matrix[:, 0, :]
+            try:
+                g = fwd.leadfield(p[None, :]).matrix[:, 0, :]
+            except UsageError:  # the model cannot place a dipole there (e.g. outside the brain)
+                return OUTSIDE
             return _residual_variance(w @ g, yw)[0]
 
         lo = lf.source_positions.min(axis=0) - margin

@@ -77,7 +77,7 @@ class _Head:
                 raise UsageError("cannot estimate the inion: the scalp has no surface behind the ear midpoint")
             self.ini = hit
             self.findings.append(Finding(
-                code="input.fiducial-missing", severity="info", subjects=("inion",), source="montage_rules",
+                code="input.landmark-estimated", severity="info", subjects=("inion",), source="montage_rules",
                 message="no inion given; estimated where the line from the nasion through the ear "
                         "midpoint leaves the scalp", values={"inion_m": hit.tolist()}))
 

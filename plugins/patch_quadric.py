@@ -11,6 +11,7 @@ are reported (and removed per option). Method notes: ``docs/source-patches.md``.
 from __future__ import annotations
 
 from collections.abc import Sequence
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -19,7 +20,8 @@ from prep.descriptors import PatchMaker
 from prep.errors import UsageError
 from prep.geometry.clearance import DEFAULT_MIN_DISTANCE_MM, clearance_findings, surface_clearance
 from prep.geometry.meshcheck import inspect_mesh, mesh_findings
-from prep.geometry.meshstats import face_areas, referenced, vertex_adjacency, vertex_areas
+from prep.geometry.meshstats import (face_areas, face_cross, referenced, vertex_adjacency, vertex_areas,
+                                     vertex_normals)
 from prep.geometry.patching import (assign_along_surface, count_for_spacing, decimation_seeds, patch_statistics,
                                     recentre_seeds)
 from prep.model import Finding, Patches, Surface
@@ -51,12 +53,16 @@ def _allocate(areas: np.ndarray, count: int) -> np.ndarray:
     return np.maximum(n, 1)
 
 
-def _main_pieces(surface: Surface, labels: np.ndarray, name: str, policy: str) -> tuple[np.ndarray, list[Finding]]:
-    """Faces to use (k,) bool, and the ``mesh.islands`` finding; ``labels`` (n,) component per vertex."""
+def _main_pieces(surface: Surface, labels: np.ndarray, face_area: np.ndarray, name: str,
+                 policy: str) -> tuple[np.ndarray, list[Finding]]:
+    """Faces to use (k,) bool, and the ``mesh.islands`` finding.
+
+    ``labels`` (n,) is the component of each vertex, ``face_area`` (k,) m^2.
+    """
     v, f = surface.vertices, surface.faces
     n_comp = int(labels.max()) + 1
     face_lab = labels[f[:, 0]]
-    comp_area = np.bincount(face_lab, weights=face_areas(v, f), minlength=n_comp)
+    comp_area = np.bincount(face_lab, weights=face_area, minlength=n_comp)
     pieces = np.unique(face_lab)
     if len(pieces) <= 1:
         return np.ones(len(f), bool), []
@@ -85,6 +91,61 @@ def _hemisphere(surface: Surface, centres: np.ndarray) -> np.ndarray:
     if surface.role == "cortex_right":
         return np.ones(len(centres), np.int8)
     return (centres[:, 0] >= 0).astype(np.int8)  # anatomy frame is RAS: +x to the right
+
+
+@dataclass(frozen=True)
+class _Prepared:
+    """One surface, measured: faces kept, edge graph, area and findings."""
+
+    keep: np.ndarray
+    face_piece: np.ndarray
+    graph: object
+    cross: np.ndarray
+    area: float
+    n_unreferenced: int
+    findings: tuple[Finding, ...]
+    flip: bool
+
+
+def _prepare(s: Surface, name: str, islands: str) -> _Prepared:
+    cross = face_cross(s.vertices, s.faces)
+    report = inspect_mesh(s.vertices, s.faces, self_intersection=False, cross=cross)
+    found = [f for f in mesh_findings(report, name=name, must_be_closed=False, source=SOURCE)
+             if f.code != "mesh.islands"]
+    # a closed, consistently wound surface with negative volume is wound inward: use outward normals
+    flip = report.closed and not len(report.winding_conflict_edges) and report.volume < 0
+    fa = face_areas(s.vertices, s.faces, cross=cross)
+    keep, fnd = _main_pieces(s, report.vertex_component, fa, name, islands)
+    graph = vertex_adjacency(s.vertices, s.faces, unique_edges=report.edges.unique)
+    area = float(fa[keep].sum())
+    return _Prepared(keep=keep, face_piece=report.vertex_component[s.faces[keep][:, 0]], graph=graph, cross=cross[keep], area=area,
+                     n_unreferenced=int((~referenced(len(s.vertices), s.faces)).sum()),
+                     findings=tuple(found + fnd), flip=flip)
+
+
+def _partition(s: Surface, prep: _Prepared, target: int, *, refine: int) -> dict:
+    """Seeds, membership along the surface, Lloyd steps and statistics for one surface."""
+    v, f = s.vertices, s.faces[prep.keep]
+    weights = vertex_areas(v, f, cross=prep.cross)
+    # each piece (e.g. both hemispheres in one file) is decimated to its share of the target on its own
+    pieces, piece_of_face = np.unique(prep.face_piece, return_inverse=True)
+    piece_area = np.bincount(piece_of_face.reshape(-1), weights=0.5 * np.linalg.norm(prep.cross, axis=1),
+                             minlength=len(pieces))
+    shares = _allocate(piece_area, int(target)) if len(pieces) > 1 else [int(target)]
+    seeds = np.unique(np.concatenate([decimation_seeds(v, f[piece_of_face.reshape(-1) == i], int(n))
+                                      for i, n in enumerate(shares)]))
+    patch, _ = assign_along_surface(v, f, seeds, graph=prep.graph)
+    for _ in range(refine):
+        seeds = recentre_seeds(v, patch, len(seeds), weights)
+        patch, _ = assign_along_surface(v, f, seeds, graph=prep.graph)
+    # the centre: the member nearest the members' area-weighted centroid (the seed itself once converged)
+    centres = v[recentre_seeds(v, patch, len(seeds), weights)]
+    nrm, _ = vertex_normals(v, f, cross=prep.cross)
+    if prep.flip:
+        nrm = -nrm
+    a, n, spr = patch_statistics(v, f, patch, len(seeds), vertex_area=weights, vertex_normal=nrm)
+    return {"centres": centres, "normals": n, "areas": a, "spread": spr, "patch": patch,
+            "unreached": int((patch[referenced(len(v), f)] < 0).sum())}
 
 
 def make(surfaces: Sequence[Surface], *, inner_skull: Surface | None = None, count: int = 8000,
@@ -134,51 +195,28 @@ def make(surfaces: Sequence[Surface], *, inner_skull: Surface | None = None, cou
     frames = {s.frame for s in surfaces} | ({inner_skull.frame} if inner_skull is not None else set())
     if len(frames) > 1:
         raise UsageError(f"patches: surfaces are in different frames: {', '.join(sorted(frames))}")
-    findings: list[Finding] = []
-    kept: list[np.ndarray] = []
-    graphs = []
     names = [_name(s, i) for i, s in enumerate(surfaces)]
     for s, name in zip(surfaces, names):
         if len(s.faces) == 0:
             raise UsageError(f"patches: {name} has no triangles")
         if not np.all(np.isfinite(s.vertices)):
             raise UsageError(f"patches: {name} has non-finite vertex coordinates")
-        report = inspect_mesh(s.vertices, s.faces, self_intersection=False)
-        findings += [f for f in mesh_findings(report, name=name, must_be_closed=False, source=SOURCE)
-                     if f.code != "mesh.islands"]
-        keep, fnd = _main_pieces(s, report.vertex_component, name, islands)
-        kept.append(keep)
-        graphs.append(vertex_adjacency(s.vertices, s.faces, unique_edges=report.edges.unique))
-        findings += fnd
-    areas = np.array([face_areas(s.vertices, s.faces[k]).sum() for s, k in zip(surfaces, kept)])
+    # sequential on purpose: fast-simplification keeps its mesh in global state, so two decimations
+    # in threads corrupt each other (measured: wrong vertex counts)
+    prepared = [_prepare(s, name, islands) for s, name in zip(surfaces, names)]
+    areas = np.array([p.area for p in prepared])
     if spacing_mm > 0:
-        targets = np.array([count_for_spacing(a, spacing_mm) for a in areas])
+        targets = [count_for_spacing(a, spacing_mm) for a in areas]
     else:
-        targets = _allocate(areas, int(count))
-
-    cols: dict[str, list[np.ndarray]] = {k: [] for k in ("centres", "normals", "areas", "spread", "hemi", "vp")}
-    offset = n_unref = n_unreached = 0
-    for s, keep, target, graph in zip(surfaces, kept, targets, graphs):
-        v, f = s.vertices, s.faces[keep]
-        used = referenced(len(v), f)
-        n_unref += int((~referenced(len(v), s.faces)).sum())
-        seeds = decimation_seeds(v, f, int(target))
-        weights = vertex_areas(v, f)
-        patch, _ = assign_along_surface(v, f, seeds, graph=graph)
-        for _ in range(refine):
-            seeds = recentre_seeds(v, patch, len(seeds), weights)
-            patch, _ = assign_along_surface(v, f, seeds, graph=graph)
-        # the centre: the member nearest the members' area-weighted centroid (the seed itself once converged)
-        centres = v[recentre_seeds(v, patch, len(seeds), weights)]
-        a, nrm, spr = patch_statistics(v, f, patch, len(seeds))
-        n_unreached += int((patch[used] < 0).sum())
-        cols["centres"].append(centres)
-        cols["normals"].append(nrm)
-        cols["areas"].append(a)
-        cols["spread"].append(spr)
-        cols["hemi"].append(_hemisphere(s, centres))
-        cols["vp"].append(np.where(patch >= 0, patch + offset, -1))
-        offset += len(seeds)
+        targets = _allocate(areas, int(count)).tolist()
+    parts = [_partition(s, p, t, refine=refine) for s, p, t in zip(surfaces, prepared, targets)]
+    findings = [f for p in prepared for f in p.findings]
+    offsets = np.cumsum([0] + [len(p["centres"]) for p in parts])
+    cols = {k: [p[k] for p in parts] for k in ("centres", "normals", "areas", "spread")}
+    cols["hemi"] = [_hemisphere(s, p["centres"]) for s, p in zip(surfaces, parts)]
+    cols["vp"] = [np.where(p["patch"] >= 0, p["patch"] + o, -1) for p, o in zip(parts, offsets)]
+    n_unref = sum(p.n_unreferenced for p in prepared)
+    n_unreached = sum(p["unreached"] for p in parts)
     centres = np.concatenate(cols["centres"])
     vertex_patch = np.concatenate(cols["vp"])
     if n_unref or n_unreached:

@@ -233,11 +233,12 @@ def write_bids(sensors: Sensors, path: str | Path) -> list[Path]:
 
 @hookimpl
 def headprep_register_sensor_readers() -> list[SensorReader]:
-    return [SensorReader(name="bids", suffixes=(SUFFIX,), read=read_bids,
+    # a bare "electrodes.tsv" (what `headprep template --out electrodes.tsv` writes) is ours too
+    return [SensorReader(name="bids", suffixes=(SUFFIX, SUFFIX.lstrip("_")), read=read_bids,
                          description="BIDS electrodes.tsv with its coordsystem.json", defaults={"units": ""})]
 
 
 @hookimpl
 def headprep_register_sensor_writers() -> list[SensorWriter]:
-    return [SensorWriter(name="bids", suffixes=(SUFFIX,), write=write_bids,
+    return [SensorWriter(name="bids", suffixes=(SUFFIX, SUFFIX.lstrip("_")), write=write_bids,
                          description="canonical BIDS electrodes.tsv + coordsystem.json, metres")]

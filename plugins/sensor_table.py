@@ -22,6 +22,7 @@ from pathlib import Path
 
 from prep import ReadError, SensorReader, Sensors, hookimpl
 from prep.electrodes import Point, assemble, parse_number, parse_unit, text_lines
+from prep.units import LENGTH_UNITS
 
 _LABEL_NAMES = {"label", "labels", "name", "names", "channel", "channels", "channel_name", "ch_name",
                 "electrode", "electrodes", "sensor", "site", "ch", "chan"}
@@ -62,6 +63,9 @@ def _header(cells: list[str], path: Path, line: int) -> tuple[dict[str, int], st
     for i, cell in enumerate(cells):
         name = cell.strip().lower()
         m = _COORD.match(name)
+        # "x_mm" or "x [mm]" name a unit; "x [parsec]" is an error; "x_err" is another column
+        if m and m.group(3) and not m.group(2) and m.group(3) not in LENGTH_UNITS:
+            m = None
         if m and m.group(1) not in cols:
             cols[m.group(1)] = i
             if m.group(3):

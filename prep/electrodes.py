@@ -24,7 +24,7 @@ import numpy as np
 from .errors import ReadError
 from .labels import normalise_label
 from .model import Finding, Provenance, Sensors
-from .units import LENGTH_UNITS, canonical_unit
+from .units import LENGTH_UNITS, canonical_unit, guess_length_unit
 
 __all__ = ["Point", "Limits", "text_lines", "parse_number", "parse_unit", "assemble", "judge_unit",
            "PLAUSIBLE_IPA_M", "PLAUSIBLE_SPREAD_M"]
@@ -162,10 +162,7 @@ def judge_unit(channels: np.ndarray, fiducials: Mapping[str, np.ndarray]) -> tup
             return None, "nothing measurable", math.nan
         value = float(np.linalg.norm(pts.max(axis=0) - pts.min(axis=0)))
         measure, (lo, hi) = "electrode spread", PLAUSIBLE_SPREAD_M
-    for name, scale in (("m", 1.0), ("cm", 1e-2), ("mm", 1e-3)):
-        if lo <= value * scale <= hi:
-            return name, measure, value
-    return None, measure, value
+    return (guess_length_unit(value, (lo, hi)) if math.isfinite(value) else None), measure, value
 
 
 def _units_finding(message: str, path: str, values: dict[str, Any]) -> Finding:

@@ -17,6 +17,7 @@ CODES: dict[str, str] = {
     "input.units-suspect": "units were missing or implausible; what was assumed is said",
     "input.fiducial-missing": "a fiducial (nasion, LPA, RPA) is missing",
     "input.too-few-points": "too few points to do what was asked",
+    "input.landmark-estimated": "a landmark that was not given (the inion) was estimated from the others",
     # placement
     "placement.off-scalp": "an electrode lies off the skin (lifted)",
     "placement.inside-scalp": "an electrode lies below the skin surface",

@@ -21,7 +21,7 @@ from .geometry import spheres as _spheres
 from .model import ForwardModel, VolumeConductor, _jsonable
 from .registry import Registry
 
-__all__ = ["fit_sphere", "sphere_conductor", "build_forward", "forward_state", "forward_from_state",
+__all__ = ["fit_sphere", "sphere_conductor", "build_forward", "forward_state", "forward_from_state", "forward_from_bundle",
            "outside_innermost", "DEFAULT_SHELLS"]
 
 #: Default shells by count: (radii as fractions of the outer radius, conductivities S/m), inside -> out.
@@ -37,21 +37,11 @@ DEFAULT_SHELLS: dict[int, tuple[tuple[float, ...], tuple[float, ...]]] = {
 
 
 def fit_sphere(points: ArrayLike) -> tuple[FloatArray, float]:
-    """Least-squares sphere (algebraic start, geometric refinement) through ``points``.
+    """Least-squares sphere through ``points`` (n, 3) metres: ``(centre (3,) m, radius m)``.
 
-    Parameters
-    ----------
-    points : (n, 3) float64, metres, n >= 4 and not coplanar
-
-    Returns
-    -------
-    centre : (3,) float64, metres
-    radius : float, metres
-
-    Raises
-    ------
-    UsageError
-        ``input.too-few-points`` when the points cannot determine a sphere.
+    :func:`prep.geometry.spheres.fit_sphere` with the kit's error: a
+    :class:`UsageError` coded ``input.too-few-points`` when fewer than 4, non-finite
+    or coplanar points cannot determine a sphere.
     """
     try:
         return _spheres.fit_sphere(points)
@@ -229,3 +219,12 @@ def forward_from_state(registry: Registry, conductor: VolumeConductor, manifest:
     if not isinstance(fm, ForwardModel):
         raise BundleError(f"forward solver '{desc.name}' restored {type(fm).__name__}, not ForwardModel")
     return fm
+
+
+def forward_from_bundle(registry: Registry, bundle: Any) -> ForwardModel:
+    """The forward model stored in a loaded :class:`prep.bundle.Bundle`, evaluable at any dipole position.
+
+    Works for every head model: the bundle names the solver that built it, and
+    that solver restores it from the stored parameters and arrays.
+    """
+    return forward_from_state(registry, bundle.conductor(), bundle.manifest, bundle.arrays)

@@ -78,8 +78,12 @@ class LabelInfo:
     fiducial: str | None = None
 
 
+_SQUASH = re.compile(r"[\s_\-.]+")
+_BLANKS = re.compile(r"\s+")
+
+
 def _squash(label: str) -> str:
-    return re.sub(r"[\s_\-.]+", "", label).lower()
+    return _SQUASH.sub("", label).lower()
 
 
 def fiducial_name(label: str) -> str | None:
@@ -93,7 +97,7 @@ def canonical_case(label: str) -> str:
     Labels that are not positions of the 10-20 family are returned stripped, with
     inner whitespace collapsed, and otherwise unchanged.
     """
-    s = re.sub(r"\s+", " ", label.strip())
+    s = _BLANKS.sub(" ", label.strip())
     m = _POSITION.match(s.replace(" ", ""))
     if not m:
         return s
@@ -135,12 +139,12 @@ def normalise_label(raw: str, kind: str | None = None) -> LabelInfo:
         synonyms to ``nasion``/``lpa``/``rpa``/``inion``.
     """
     original = raw.strip()
+    declared = KIND_WORDS.get(kind.strip().lower()) if kind else None
+    if declared == "headshape":
+        return LabelInfo(original, original, "headshape")
     label = canonical_case(original)
     label = OLD_TEMPORAL.get(label, label)
-    declared = KIND_WORDS.get(kind.strip().lower()) if kind else None
     fid = fiducial_name(original)
-    if declared == "headshape":
-        return LabelInfo(label, original, "headshape")
     if declared == "fiducial":
         return LabelInfo(label, original, "fiducial", fid)
     if fid is not None and declared is None and _squash(original) != "iz":

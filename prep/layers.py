@@ -16,7 +16,7 @@ from .geometry.layers import (derive_inward, inside, interior_centre, is_closed,
                               remesh_radial, star_shaped)
 from .model import Finding, Surface, VolumeConductor
 
-__all__ = ["LAYER_ROLES", "DeriveSettings", "check_layers", "repair_orientation", "derive_layers",
+__all__ = ["LAYER_ROLES", "DeriveSettings", "check_layers", "repair_orientation", "derive_layers", "derive_head",
            "sources_outside"]
 
 #: roles of the three layers, inside -> out
@@ -109,9 +109,19 @@ def repair_orientation(surface: Surface) -> tuple[Surface, Finding | None]:
     return replace(surface, faces=faces), note
 
 
-def derive_layers(scalp: Surface, settings: DeriveSettings | None = None, *,
-                  outer_skull: Surface | None = None) -> tuple[tuple[Surface, Surface, Surface], list[Finding]]:
-    """Inner skull, outer skull and scalp from a scalp (and optionally an outer skull).
+def derive_layers(scalp: Surface, settings: DeriveSettings | None = None) -> tuple[Surface, Surface]:
+    """Outer and inner skull derived from a scalp: ``(outer_skull, inner_skull)``.
+
+    See :func:`derive_head`; the scalp itself is left as given (its radially
+    remeshed copy coincides with it at its own vertices).
+    """
+    (inner, outer, _), _ = derive_head(scalp, settings)
+    return outer, inner
+
+
+def derive_head(scalp: Surface, settings: DeriveSettings | None = None, *,
+                outer_skull: Surface | None = None) -> tuple[tuple[Surface, Surface, Surface], list[Finding]]:
+    """Inner skull, outer skull and remeshed scalp from a scalp (and optionally an outer skull).
 
     The scalp (and a given outer skull) is remeshed on a subdivided icosahedron
     along rays from its volume centroid; the missing layers are inward offsets

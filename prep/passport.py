@@ -26,7 +26,8 @@ __all__ = ["Passport", "run_passport", "passport_pngs", "PNG_NAMES"]
 
 #: picture -> file name written by :func:`passport_pngs`
 PNG_NAMES = {"spectrum": "passport-spectrum.png", "depth": "passport-depth.png",
-             "peak_error": "passport-peak-error.png", "dispersion": "passport-dispersion.png"}
+             "peak_error": "passport-peak-error.png", "dispersion": "passport-dispersion.png",
+             "peak_error_map": "passport-peak-error-map.png"}
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -152,10 +153,32 @@ def _hist(arr: np.ndarray, title: str, xlabel: str, path: Path) -> Path:
     return save_figure_png(fig, path)
 
 
-def passport_pngs(passport: Passport, outdir: str | os.PathLike[str]) -> list[Path]:
+def _error_map(values: np.ndarray, positions: np.ndarray, path: Path) -> Path:
+    """Sources seen from above and from the left, coloured by peak localisation error (mm)."""
+    from .render import figure, save_figure_png
+
+    fig = figure(figsize=(9.0, 4.0))
+    order = np.argsort(values)  # largest errors drawn last, on top
+    p, v = positions[order] * 1e3, values[order] * 1e3
+    vmax = float(np.nanpercentile(v, 95)) if np.isfinite(v).any() else 1.0
+    views = ((0, 1, "top view (x across, y up the page)"), (1, 2, "side view (y across, z up)"))
+    for k, (a, b, title) in enumerate(views):
+        ax = fig.add_subplot(1, 2, k + 1)
+        sc = ax.scatter(p[:, a], p[:, b], c=v, s=4, cmap="viridis", vmin=0.0, vmax=vmax)
+        ax.set_aspect("equal")
+        ax.set_title(title, fontsize=9)
+        ax.set_xlabel("mm")
+    fig.colorbar(sc, ax=fig.axes, label="peak localisation error (mm)", shrink=0.85)
+    fig.suptitle("Minimum-norm peak localisation error per source")
+    return save_figure_png(fig, path)
+
+
+def passport_pngs(passport: Passport, outdir: str | os.PathLike[str],
+                  source_positions: np.ndarray | None = None) -> list[Path]:
     """Draw the passport's pictures into ``outdir`` (atomically, one PNG each).
 
-    Pictures whose arrays are missing (a check skipped) are not drawn.
+    Pictures whose arrays are missing (a check skipped) are not drawn; the map
+    of the peak localisation error needs ``source_positions`` (n_sources, 3) m.
 
     Returns
     -------
@@ -170,10 +193,15 @@ def passport_pngs(passport: Passport, outdir: str | os.PathLike[str]) -> list[Pa
     written: list[Path] = []
     if "singular_values" in a:
         s = np.asarray(a["singular_values"])
+        spec = passport.metrics.get("leadfield-spectrum", {})
+        rank = spec.get("numerical_rank")
+        shown = s[:rank] if isinstance(rank, int) and rank > 0 else s  # the reference's zero would swamp the scale
         fig = figure(figsize=(5.5, 3.6))
         ax = fig.add_subplot(1, 1, 1)
-        ax.semilogy(np.arange(1, s.size + 1), np.where(s > 0, s, np.nan), ".-", color="#3b6e8f")
-        spec = passport.metrics.get("leadfield-spectrum", {})
+        ax.semilogy(np.arange(1, shown.size + 1), np.where(shown > 0, shown, np.nan), ".-", color="#3b6e8f")
+        if shown.size < s.size:
+            ax.text(0.99, 0.97, f"{s.size - shown.size} numerically zero value(s) not shown", ha="right", va="top",
+                    transform=ax.transAxes, fontsize=8)
         floor = spec.get("noise_floor")
         if isinstance(floor, float) and floor > 0:
             ax.axhline(floor, color="#b04020", linestyle="--",
@@ -199,4 +227,8 @@ def passport_pngs(passport: Passport, outdir: str | os.PathLike[str]) -> list[Pa
     if "spatial_dispersion" in a:
         written.append(_hist(np.asarray(a["spatial_dispersion"]), "Point-spread spatial dispersion",
                              "dispersion (mm)", out / PNG_NAMES["dispersion"]))
+    if "peak_localisation_error" in a and source_positions is not None:
+        pos = np.asarray(source_positions, dtype=np.float64)
+        if pos.shape == (len(a["peak_localisation_error"]), 3):
+            written.append(_error_map(np.asarray(a["peak_localisation_error"]), pos, out / PNG_NAMES["peak_error_map"]))
     return written

@@ -19,6 +19,7 @@ from . import forward as fwd
 from .bundle import ArraySpec, verify_bundle, write_bundle
 from .checks import run_checks, validate_check_options
 from .errors import UsageError
+from .geometry.meshcheck import repair_surface
 from .geometry.surface import closest_points
 from .model import FIDUCIALS, Finding, Patches, Sensors, Surface, Transform
 from .readers import read_sensors, read_surface
@@ -89,6 +90,11 @@ def read_inputs(registry: Registry, recipe: Recipe) -> SubjectInputs:
     findings: list[Finding] = []
     files: list[dict[str, Any]] = []
 
+    def repaired(surf: Surface) -> Surface:
+        fixed, notes = repair_surface(surf)
+        findings.extend(notes)
+        return fixed
+
     def note_file(role: str, obj: Sensors | Surface) -> None:
         prov = obj.provenance
         files.append({"role": role, "file": prov.file, "sha256": prov.sha256, "reader": prov.reader,
@@ -120,18 +126,19 @@ def read_inputs(registry: Registry, recipe: Recipe) -> SubjectInputs:
             fids = None
     units = inp.get("mesh_units")
     reader = inp.get("surface_reader")
-    scalp = read_surface(registry, inp["scalp"], "scalp", reader=reader, units=units)
+    scalp = repaired(read_surface(registry, inp["scalp"], "scalp", reader=reader, units=units))
     note_file("scalp", scalp)
     skulls = {}
     for role in ("outer_skull", "inner_skull"):
-        skulls[role] = read_surface(registry, inp[role], role, reader=reader, units=units) if inp.get(role) else None
+        skulls[role] = (repaired(read_surface(registry, inp[role], role, reader=reader, units=units))
+                        if inp.get(role) else None)
         if skulls[role] is not None:
             note_file(role, skulls[role])
     cortex = []
     n = len(inp["cortex"])
     for i, path in enumerate(inp["cortex"]):
         role = "cortex" if n == 1 else ("cortex_left", "cortex_right")[i] if n == 2 else f"cortex_{i}"
-        surf = read_surface(registry, path, role, reader=reader, units=units)
+        surf = repaired(read_surface(registry, path, role, reader=reader, units=units))
         note_file(f"cortex[{i}]", surf)
         cortex.append(surf)
     return SubjectInputs(sensors=sensors, anatomy_fiducials=fids, scalp=scalp, outer_skull=skulls["outer_skull"],
@@ -280,12 +287,12 @@ def step_forward(registry: Registry, recipe: Recipe, inputs: SubjectInputs, alig
     if "leadfield" not in arrays:  # the passport and the bundle's accessors need the fixed one
         arrays["leadfield"] = np.einsum("nmk,mk->nm", arrays["leadfield_free"], normals)
     state, state_arrays = fwd.forward_state(fm)
-    arrays.update({f"forward_{k}": v for k, v in state_arrays.items()})
+    arrays.update(state_arrays)
     if conductor.kind == "layers":
         for i, s in enumerate(conductor.layers):
             arrays[f"layer{i}_vertices"] = s.vertices
             arrays[f"layer{i}_faces"] = s.faces
-    meta = {"forward": state, "head_model": conductor.describe()}
+    meta = {"forward": state["forward"], "head_model": conductor.describe()}
     return StepResult(meta=meta, arrays=arrays, findings=findings)
 
 

@@ -7,6 +7,7 @@ from __future__ import annotations
 import os
 from dataclasses import replace
 from pathlib import Path
+from typing import Any
 
 from .atomic import sha256_file
 from .errors import ReadError, UsageError
@@ -32,6 +33,22 @@ def _provenance(old: Provenance, path: Path, reader: str) -> Provenance:
     return replace(old, file=str(path), reader=reader, sha256=sha256_file(path))
 
 
+def _read(registry: Registry, kind: str, expected: type, path: str | os.PathLike[str], what: str,
+          reader: str | None, units: str | None) -> tuple[Any, Path, Any]:
+    """Pick the reader of ``kind`` for ``path``, call it (with the units override) and check its result."""
+    p = check_input_file(path, what)
+    desc = registry.for_file(kind, p, reader)
+    kwargs = {}
+    if units is not None:
+        if not registry.accepts(desc.read, "units"):
+            raise UsageError(f"{kind.replace('_', ' ')} '{desc.name}' does not take a units override")
+        kwargs["units"] = units
+    obj = registry.call(desc, "read", p, step=f"{kind.replace('_', ' ')} '{desc.name}' reading {p}", **kwargs)
+    if not isinstance(obj, expected):
+        raise ReadError(p, None, f"reader '{desc.name}' returned {type(obj).__name__}, not {expected.__name__}")
+    return obj, p, desc
+
+
 def read_sensors(registry: Registry, path: str | os.PathLike[str], *, reader: str | None = None,
                  units: str | None = None) -> Sensors:
     """Read an electrode file with the matching (or named) sensor reader.
@@ -50,16 +67,7 @@ def read_sensors(registry: Registry, path: str | os.PathLike[str], *, reader: st
     Sensors
         Metres; provenance has file, reader name and sha256.
     """
-    p = check_input_file(path, "electrode")
-    desc = registry.for_file("sensor_reader", p, reader)
-    kwargs = {}
-    if units is not None:
-        if not registry.accepts(desc.read, "units"):
-            raise UsageError(f"sensor reader '{desc.name}' does not take a units override")
-        kwargs["units"] = units
-    sensors = registry.call(desc, "read", p, step=f"sensor reader '{desc.name}' reading {p}", **kwargs)
-    if not isinstance(sensors, Sensors):
-        raise ReadError(p, None, f"reader '{desc.name}' returned {type(sensors).__name__}, not Sensors")
+    sensors, p, desc = _read(registry, "sensor_reader", Sensors, path, "electrode", reader, units)
     return replace(sensors, provenance=_provenance(sensors.provenance, p, desc.name))
 
 
@@ -72,14 +80,5 @@ def read_surface(registry: Registry, path: str | os.PathLike[str], role: str, *,
     Surface
         Vertices in metres; ``role`` and ``frame`` set; provenance filled in.
     """
-    p = check_input_file(path, f"{role} mesh")
-    desc = registry.for_file("surface_reader", p, reader)
-    kwargs = {}
-    if units is not None:
-        if not registry.accepts(desc.read, "units"):
-            raise UsageError(f"surface reader '{desc.name}' does not take a units override")
-        kwargs["units"] = units
-    surf = registry.call(desc, "read", p, step=f"surface reader '{desc.name}' reading {p}", **kwargs)
-    if not isinstance(surf, Surface):
-        raise ReadError(p, None, f"reader '{desc.name}' returned {type(surf).__name__}, not Surface")
+    surf, p, desc = _read(registry, "surface_reader", Surface, path, f"{role} mesh", reader, units)
     return replace(surf, role=role, frame=frame, provenance=_provenance(surf.provenance, p, desc.name))

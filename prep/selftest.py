@@ -9,12 +9,12 @@ and the distance between its peak (or fitted dipole) and the true patch is the
 localisation error.
 
 The dipole fit evaluates the bundle's forward model at arbitrary positions
-when one can be restored (``prep.forward.forward_from_bundle``); otherwise it
+when one can be restored from the bundle (:mod:`prep.forward`); otherwise it
 falls back to a grid search over the stored lead field.
 """
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -66,11 +66,13 @@ class SelftestResult:
 def restore_forward(registry: Registry, bundle: Bundle) -> tuple[ForwardModel | None, str]:
     """The bundle's forward model if the kit can restore it, else None and the reason."""
     try:
-        from .forward import forward_from_bundle  # provided by the pipeline's forward module
+        from . import forward as fwd
     except ImportError:
-        return None, "grid search (this kit cannot restore forward models yet)"
+        return None, "grid search (this kit cannot restore forward models)"
     try:
-        return forward_from_bundle(registry, bundle), "forward model"
+        if hasattr(fwd, "forward_from_bundle"):
+            return fwd.forward_from_bundle(registry, bundle), "forward model"
+        return fwd.forward_from_state(registry, bundle.conductor(), bundle.manifest, bundle.arrays), "forward model"
     except (HeadprepError, KeyError) as exc:
         return None, f"grid search (forward model not restored: {exc})"
 
@@ -87,7 +89,8 @@ def _reference_operator(reference: str, labels: Sequence[str]) -> np.ndarray:
 
 
 def run_selftest(registry: Registry, bundle: Bundle, *, snr: float = 3.0, n_dipoles: int = 20, seed: int = 0,
-                 forward: ForwardModel | None | str = "auto", solvers: Sequence[str] | None = None) -> SelftestResult:
+                 forward: ForwardModel | None | str = "auto", solvers: Sequence[str] | None = None,
+                 progress: Callable[[str | None], None] | None = None) -> SelftestResult:
     """Simulate ``n_dipoles`` single dipoles and localise each with every inverse solver.
 
     Parameters
@@ -105,6 +108,8 @@ def run_selftest(registry: Registry, bundle: Bundle, *, snr: float = 3.0, n_dipo
         "auto" restores it from the bundle when possible.
     solvers : names, optional
         Default: every registered inverse solver.
+    progress : callable, optional
+        Called with the solver's name after each solver has finished.
 
     Returns
     -------
@@ -152,6 +157,8 @@ def run_selftest(registry: Registry, bundle: Bundle, *, snr: float = 3.0, n_dipo
             est = solve(problem(slice(None), float(np.median(sigmas))), "all self-test dipoles")
             found = lf.source_positions[np.argmax(np.abs(np.asarray(est.amplitudes)), axis=0)]
         errors[d.name] = np.linalg.norm(found - lf.source_positions[idx], axis=1)
+        if progress is not None:
+            progress(d.name)
     summary = {name: {"median_mm": float(np.median(e) * 1e3), "p90_mm": float(np.percentile(e, 90) * 1e3),
                       "max_mm": float(e.max() * 1e3)} for name, e in errors.items()}
     return SelftestResult(snr=snr, seed=seed, true_indices=idx, errors=errors, summary=summary, forward=how)

@@ -43,6 +43,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="aligner: surface (robust ICP, default) or fiducial")
     parser.add_argument("--sensor-units", metavar="UNIT", help="length unit of the electrode files (m, cm, mm)")
     parser.add_argument("--mesh-units", metavar="UNIT", help="length unit of the mesh (m, cm, mm)")
+    parser.add_argument("--set", action="append", default=[], metavar="KEY=VALUE", dest="settings",
+                        help="an option of the aligner or of a placement check, e.g. off_scalp_fail_m=0.012 "
+                             "(repeatable; see `headprep plugins --json` for the defaults)")
     parser.add_argument("--out", type=Path, metavar="DIR", help="write the transform, placed electrodes and picture")
     parser.add_argument("--json", action="store_true", help="print one JSON document on stdout")
 
@@ -168,11 +171,34 @@ def _human(doc: dict[str, Any], findings: list[Finding], written: list[Path]) ->
     return "\n".join(lines)
 
 
+def _settings(ctx: Context, args: argparse.Namespace) -> tuple[dict[str, Any], dict[str, Any]]:
+    """Split ``--set KEY=VALUE`` into aligner options and placement-check options (values parsed as JSON)."""
+    from ..checks import validate_check_options
+    from ..errors import UsageError
+
+    aligner = ctx.registry.get("aligner", args.method)
+    mine: dict[str, Any] = {}
+    checks: dict[str, Any] = {}
+    for item in args.settings:
+        key, sep, raw = item.partition("=")
+        if not sep or not key.strip():
+            raise UsageError(f"--set {item!r}: expected KEY=VALUE")
+        try:
+            value = json.loads(raw)
+        except json.JSONDecodeError:
+            value = raw
+        (mine if key.strip() in aligner.defaults else checks)[key.strip()] = value
+    validate_check_options(ctx.registry, checks, "--set")
+    return mine, checks
+
+
 def run(args: argparse.Namespace, ctx: Context) -> int:
     from ..placement import place_sensors
 
+    options, check_options = _settings(ctx, args)
     sensors, scalp, fids, findings = _read(ctx, args)
-    res = place_sensors(ctx.registry, sensors, scalp, fids, method=args.method)
+    res = place_sensors(ctx.registry, sensors, scalp, fids, method=args.method, options=options,
+                        check_options=check_options)
     findings += list(res.findings)
     doc = _document(res, findings)
     written = _write(ctx, args.out, doc, res, scalp) if args.out else []

@@ -27,7 +27,7 @@ Give a bundle, or a lead field as .npy files (metres, V/(A*m)):
   headprep check subject.bundle
   headprep check --leadfield L.npy --sensor-positions S.npy --source-positions P.npy
 
-The passport (passport.json, arrays/*.npy and four PNGs) is written atomically
+The passport (passport.json, arrays/*.npy and five PNGs) is written atomically
 to --out (default: <input>-passport next to the input). Exit 1 when a check
 fails, 2 when an input cannot be used."""
 
@@ -96,7 +96,8 @@ def _human(passport: Passport, out: Path) -> str:
     lines = [f"passport written to {out}"]
     if "condition_number" in spec:
         lines.append(f"  spectrum: rank {spec['numerical_rank']}/{spec['expected_rank']}, condition number "
-                     f"{float(spec['condition_number']):.3g}, effective rank {spec['effective_rank']} at SNR {spec['snr']:g}")
+                     f"{float(spec['condition_number']):.3g}, effective rank {spec['effective_rank']} "
+                     f"at SNR {spec['snr']:g}")
     if "ratio" in dep:
         lines.append(f"  depth: superficial/deep column-norm ratio {float(dep['ratio']):.3g}")
     if "peak_localisation_error" in res:
@@ -130,7 +131,7 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
         (tmp / "arrays").mkdir()
         for name, arr in passport.arrays.items():
             np.save(tmp / "arrays" / f"{name}.npy", np.ascontiguousarray(arr), allow_pickle=False)
-        pngs = [] if args.no_png else passport_pngs(passport, tmp)
+        pngs = [] if args.no_png else passport_pngs(passport, tmp, lf.source_positions)
         doc["files"] = ["passport.json", *(f"arrays/{k}.npy" for k in passport.arrays), *(p.name for p in pngs)]
         (tmp / "passport.json").write_text(json.dumps(doc, indent=2, allow_nan=False) + "\n", encoding="utf-8")
     ctx.emit(doc, lambda: _human(passport, out))

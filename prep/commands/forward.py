@@ -8,7 +8,7 @@ import numpy as np
 
 from ..atomic import atomic_file
 from ..errors import ReadError, UsageError
-from ..forward import build_forward, outside_innermost, sphere_conductor
+from ..forward import DEFAULT_SHELLS, build_forward, outside_innermost, sphere_conductor
 from ..model import VolumeConductor
 from ..readers import check_input_file, read_sensors, read_surface
 
@@ -34,9 +34,9 @@ meshes (same frame as the electrodes), conductivities inside -> out
 (default 0.33, 0.0042, 0.33 S/m).
 """
 
-#: default conductivities for three nested layers, inside -> out (brain, skull, scalp), S/m;
-#: skull:brain 1:80 after Rush & Driscoll (1968), as for the sphere model.
-LAYER_CONDUCTIVITIES = (0.33, 0.0042, 0.33)
+#: default conductivities for three nested layers, inside -> out (brain, skull, scalp), S/m:
+#: the same published values as the 3-shell sphere model (docs/sphere-model.md).
+LAYER_CONDUCTIVITIES = DEFAULT_SHELLS[3][1]
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

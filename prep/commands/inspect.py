@@ -9,6 +9,7 @@ import numpy as np
 
 from ..console import exit_status, format_findings
 from ..model import Finding, Sensors
+from ..checks import run_checks
 from ..readers import read_sensors
 
 HELP = "read an electrode file and report what is in it"
@@ -23,17 +24,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--reader", metavar="NAME", help="use this sensor reader instead of choosing by file name")
     parser.add_argument("--units", metavar="UNIT", help="the file's length unit (m, cm, mm), overriding the file")
     parser.add_argument("--json", action="store_true", help="print one JSON document on stdout")
-
-
-def sensor_checks(registry, sensors: Sensors) -> list[Finding]:  # noqa: ANN001
-    """Findings of every registered check with target ``sensors`` (plus those raised while reading)."""
-    found = list(sensors.findings)
-    for check in registry.descriptors("check"):
-        if check.target != "sensors":
-            continue
-        result = registry.call(check, "run", sensors=sensors, step=f"check '{check.name}'")
-        found.extend(result.findings if hasattr(result, "findings") else result)
-    return found
 
 
 def head_size_mm(sensors: Sensors) -> dict[str, float | None]:
@@ -87,7 +77,7 @@ def _human(doc: dict[str, Any], findings: list[Finding]) -> str:
 
 def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
     sensors = read_sensors(ctx.registry, args.file, reader=args.reader, units=args.units)
-    findings = sensor_checks(ctx.registry, sensors)
+    findings = list(sensors.findings) + list(run_checks(ctx.registry, "sensors", sensors=sensors).findings)
     doc = describe(sensors, findings)
     ctx.emit(doc, lambda: _human(doc, findings))
     return exit_status(findings)

@@ -57,7 +57,8 @@ def read_{name}(path: str | Path, units: str | None = None) -> Sensors:
         if len(cells) <= max(COLUMNS):
             raise ReadError(p, number, f"expected at least {{max(COLUMNS) + 1}} columns, found {{len(cells)}}")
         label = cells[COLUMNS[0]]
-        xyz = tuple(parse_number(cells[i], p, number, f"{{a}} value of {{label!r}}") for a, i in zip("xyz", COLUMNS[1:]))
+        xyz = tuple(parse_number(cells[i], p, number, f"{{a}} value of {{label!r}}")
+                    for a, i in zip("xyz", COLUMNS[1:]))
         points.append(Point(label=label, xyz=xyz, line=number))
     if not points:
         raise ReadError(p, None, "no data rows")

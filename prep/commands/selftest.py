@@ -50,6 +50,9 @@ def _human(res: SelftestResult, bundle: str) -> str:
 
 def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
     bundle = load_bundle(args.bundle)
-    res = run_selftest(ctx.registry, bundle, snr=args.snr, n_dipoles=args.n_dipoles, seed=args.seed)
+    n_solvers = len(ctx.registry.descriptors("inverse_solver"))
+    with ctx.progress(n_solvers, "self-test") as advance:
+        res = run_selftest(ctx.registry, bundle, snr=args.snr, n_dipoles=args.n_dipoles, seed=args.seed,
+                           progress=advance)
     ctx.emit({"bundle": args.bundle, **res.to_dict(), "findings": []}, lambda: _human(res, args.bundle))
     return EXIT_OK

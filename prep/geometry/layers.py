@@ -87,19 +87,39 @@ def signed_volume(vertices: np.ndarray, faces: np.ndarray) -> float:
 
 
 def solid_angle_sum(points: np.ndarray, vertices: np.ndarray, faces: np.ndarray,
-                    chunk: int = 2_000_000) -> np.ndarray:
+                    block: int = 64) -> np.ndarray:
     """Total solid angle (m,) subtended at each point by a closed mesh (van Oosterom & Strackee 1983).
 
-    About 4*pi inside an outward mesh, 0 outside, 2*pi on it.
+    About 4*pi inside an outward mesh, -4*pi inside an inward one, 0 outside,
+    2*pi on it. Dot products are expanded so a block of points costs a few
+    (b, 3) x (3, n) products.
     """
     p = np.atleast_2d(np.asarray(points, dtype=float))
-    t = np.asarray(vertices, dtype=float)[np.asarray(faces)]
+    v = np.asarray(vertices, dtype=float)
+    f = np.asarray(faces)
+    x = [v[f[:, c]] for c in range(3)]
+    det0 = np.einsum("ij,ij->i", x[0], np.cross(x[1], x[2]))
+    area2n = np.cross(x[1] - x[0], x[2] - x[0]).T
+    elen = [np.einsum("ij,ij->i", x[b] - x[a], x[b] - x[a]) for a, b in ((0, 1), (1, 2), (2, 0))]
+    vsq = np.einsum("ij,ij->i", v, v)
     out = np.empty(len(p))
-    step = max(1, chunk // max(1, len(t)))
-    for s in range(0, len(p), step):
-        y = t[None, :, :, :] - p[s:s + step, None, None, :]
-        out[s:s + step] = triangle_solid_angles(y[:, :, 0], y[:, :, 1], y[:, :, 2]).sum(axis=1)
+    for s in range(0, len(p), block):
+        r = p[s:s + block]
+        sq = np.maximum(vsq[None, :] - 2.0 * _dot3(r, v.T) + np.einsum("ij,ij->i", r, r)[:, None], 0.0)
+        d2 = [sq[:, f[:, c]] for c in range(3)]
+        n = [np.sqrt(d) for d in d2]
+        d01 = 0.5 * (d2[0] + d2[1] - elen[0])
+        d12 = 0.5 * (d2[1] + d2[2] - elen[1])
+        d20 = 0.5 * (d2[2] + d2[0] - elen[2])
+        num = det0[None, :] - _dot3(r, area2n)
+        den = n[0] * n[1] * n[2] + d01 * n[2] + d20 * n[1] + d12 * n[0]
+        out[s:s + block] = 2.0 * np.arctan2(num, den).sum(axis=1)
     return out
+
+
+def _dot3(r: np.ndarray, m: np.ndarray) -> np.ndarray:
+    """(b, 3) @ (3, k) by broadcasting (BLAS is slow for an inner size of 3)."""
+    return r[:, 0:1] * m[0] + r[:, 1:2] * m[1] + r[:, 2:3] * m[2]
 
 
 def triangle_solid_angles(y1: np.ndarray, y2: np.ndarray, y3: np.ndarray) -> np.ndarray:
@@ -146,30 +166,33 @@ def star_shaped(vertices: np.ndarray, faces: np.ndarray, centre: np.ndarray,
 
 
 def ray_radii(directions: np.ndarray, vertices: np.ndarray, faces: np.ndarray,
-              centre: np.ndarray) -> np.ndarray:
-    """Distance (m,) metres from ``centre`` along unit ``directions`` to a star-shaped mesh.
+              centre: np.ndarray, block: int = 256) -> np.ndarray:
+    """Distance (m,) metres from ``centre`` along unit ``directions`` to the nearest crossing of a mesh.
 
-    Uses the face each ray crosses (Moller-Trumbore style, vectorised in chunks);
-    NaN where no face is hit.
+    Moller & Trumbore (1997) ray-triangle test, written as (b, 3) x (3, k)
+    products per block of rays; NaN where no face is hit.
     """
     d = np.asarray(directions, dtype=float)
     t = np.asarray(vertices, dtype=float)[np.asarray(faces)] - np.asarray(centre, dtype=float)
     e1, e2 = t[:, 1] - t[:, 0], t[:, 2] - t[:, 0]
+    tv = -t[:, 0]
+    det_m = np.cross(e2, e1).T          # det = d . (e2 x e1)
+    u_m = np.cross(e2, tv).T            # u det = d . (e2 x T)
+    q = np.cross(tv, e1)
+    w_m = q.T                           # w det = d . Q
+    r_num = np.einsum("ij,ij->i", e2, q)
     out = np.full(len(d), np.nan)
-    step = max(1, 4_000_000 // max(1, len(t)))
-    for s in range(0, len(d), step):
-        dd = d[s:s + step, None, :]
-        pv = np.cross(dd, e2[None])
-        det = np.einsum("mki,ki->mk", pv, e1)
-        inv = np.divide(1.0, det, out=np.zeros_like(det), where=np.abs(det) > 1e-300)
-        tv = -t[None, :, 0]
-        u = np.einsum("mki,ki->mk", pv, tv[0]) * inv
-        q = np.cross(tv, e1[None])
-        w = np.einsum("mki,mki->mk", q, np.broadcast_to(dd, q.shape)) * inv
-        r = np.einsum("mki,ki->mk", q, e2) * inv
-        hit = (u >= -1e-9) & (w >= -1e-9) & (u + w <= 1 + 1e-9) & (r > 0) & (np.abs(det) > 0)
+    for s in range(0, len(d), block):
+        dd = d[s:s + block]
+        det = _dot3(dd, det_m)
+        ok = np.abs(det) > 1e-300
+        inv = np.divide(1.0, det, out=np.zeros_like(det), where=ok)
+        u = _dot3(dd, u_m) * inv
+        w = _dot3(dd, w_m) * inv
+        r = r_num[None, :] * inv
+        hit = ok & (u >= -1e-9) & (w >= -1e-9) & (u + w <= 1 + 1e-9) & (r > 0)
         rr = np.where(hit, r, np.inf).min(axis=1)
-        out[s:s + step] = np.where(np.isfinite(rr), rr, np.nan)
+        out[s:s + block] = np.where(np.isfinite(rr), rr, np.nan)
     return out
 
 

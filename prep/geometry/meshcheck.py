@@ -19,7 +19,8 @@ from scipy.spatial import cKDTree
 
 from .._typing import BoolArray, FloatArray, IntArray
 from ..model import Finding, Surface
-from .meshstats import EdgeCounts, components, degenerate_faces, edge_counts, face_areas, mean_edge_length, referenced
+from .meshstats import (EdgeCounts, components, degenerate_faces, edge_counts, face_areas, face_cross,
+                        mean_edge_length, referenced)
 
 __all__ = ["MeshReport", "inspect_mesh", "mesh_findings", "repair_surface", "self_intersecting_faces",
            "signed_volume"]
@@ -132,7 +133,8 @@ class MeshReport:
                 "area_m2": self.area}
 
 
-def inspect_mesh(vertices: FloatArray, faces: IntArray, *, self_intersection: bool = True) -> MeshReport:
+def inspect_mesh(vertices: FloatArray, faces: IntArray, *, self_intersection: bool = True,
+                 cross: FloatArray | None = None) -> MeshReport:
     """Measure closedness, manifoldness, winding, degeneracy, self-crossing and topology.
 
     Parameters
@@ -141,13 +143,17 @@ def inspect_mesh(vertices: FloatArray, faces: IntArray, *, self_intersection: bo
     faces : (k, 3) int64
     self_intersection : bool
         Run the (slower) self-intersection search.
+    cross : (k, 3) float64, optional
+        :func:`~prep.geometry.meshstats.face_cross` if already computed.
     """
     v = np.asarray(vertices, dtype=np.float64)
     f = np.asarray(faces, dtype=np.int64)
     ec = edge_counts(f)
     used = np.flatnonzero(referenced(len(v), f))
     n_comp, labels = components(len(v), f, unique_edges=ec.unique)
-    fa = face_areas(v, f)
+    if cross is None and len(f):
+        cross = face_cross(v, f)
+    fa = face_areas(v, f, cross=cross) if len(f) else np.zeros(0)
     comp_area = np.bincount(labels[f[:, 0]], weights=fa, minlength=n_comp) if len(f) else np.zeros(0)
     comp_area = np.sort(comp_area[np.unique(labels[used])])[::-1] if len(f) else comp_area
     return MeshReport(
@@ -155,7 +161,7 @@ def inspect_mesh(vertices: FloatArray, faces: IntArray, *, self_intersection: bo
         n_vertices=len(v), n_faces=len(f),
         boundary_edges=ec.unique[ec.count == 1], nonmanifold_edges=ec.unique[ec.count > 2],
         winding_conflict_edges=ec.unique[ec.same_direction],
-        degenerate=degenerate_faces(v, f) if len(f) else np.zeros(0, bool),
+        degenerate=degenerate_faces(v, f, cross=cross) if len(f) else np.zeros(0, bool),
         self_intersecting=self_intersecting_faces(v, f) if self_intersection else None,
         n_components=int(len(comp_area)), component_areas=comp_area,
         euler=int(len(used) - len(ec.unique) + len(f)), volume=signed_volume(v, f) if len(f) else 0.0,

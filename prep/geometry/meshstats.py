@@ -42,9 +42,10 @@ def face_cross(vertices: FloatArray, faces: IntArray) -> FloatArray:
     return np.cross(v[f[:, 1]] - a, v[f[:, 2]] - a)
 
 
-def face_areas(vertices: FloatArray, faces: IntArray) -> FloatArray:
-    """(k,) float64 triangle areas, m^2."""
-    return 0.5 * np.linalg.norm(face_cross(vertices, faces), axis=1)
+def face_areas(vertices: FloatArray, faces: IntArray, *, cross: FloatArray | None = None) -> FloatArray:
+    """(k,) float64 triangle areas, m^2 (``cross``: :func:`face_cross` if already computed)."""
+    c = face_cross(vertices, faces) if cross is None else cross
+    return 0.5 * np.sqrt(np.einsum("ij,ij->i", c, c))
 
 
 def face_normals(vertices: FloatArray, faces: IntArray) -> tuple[FloatArray, BoolArray]:
@@ -60,19 +61,20 @@ def face_normals(vertices: FloatArray, faces: IntArray) -> tuple[FloatArray, Boo
     return out, valid
 
 
-def vertex_areas(vertices: FloatArray, faces: IntArray) -> FloatArray:
+def vertex_areas(vertices: FloatArray, faces: IntArray, *, cross: FloatArray | None = None) -> FloatArray:
     """(n,) float64 barycentric vertex areas, m^2: a third of every incident face's area.
 
     Unreferenced vertices get 0. ``vertex_areas(...).sum() == face_areas(...).sum()``
     up to rounding.
     """
     n = len(vertices)
-    fa = face_areas(vertices, faces) / 3.0
+    fa = face_areas(vertices, faces, cross=cross) / 3.0
     f = np.asarray(faces, dtype=np.int64)
     return np.bincount(f.ravel(), weights=np.repeat(fa, 3), minlength=n)
 
 
-def vertex_normals(vertices: FloatArray, faces: IntArray) -> tuple[FloatArray, BoolArray]:
+def vertex_normals(vertices: FloatArray, faces: IntArray, *,
+                   cross: FloatArray | None = None) -> tuple[FloatArray, BoolArray]:
     """Area-weighted unit vertex normals (n, 3) float64 and a (n,) bool ``valid`` mask.
 
     Each vertex sums the cross products of its incident faces (face normal times
@@ -81,9 +83,9 @@ def vertex_normals(vertices: FloatArray, faces: IntArray) -> tuple[FloatArray, B
     """
     n = len(vertices)
     f = np.asarray(faces, dtype=np.int64)
-    c = np.repeat(face_cross(vertices, f), 3, axis=0)
+    c = face_cross(vertices, f) if cross is None else np.asarray(cross)
     idx = f.ravel()
-    acc = np.stack([np.bincount(idx, weights=c[:, j], minlength=n) for j in range(3)], axis=1)
+    acc = np.stack([np.bincount(idx, weights=np.repeat(c[:, j], 3), minlength=n) for j in range(3)], axis=1)
     norm = np.linalg.norm(acc, axis=1)
     valid = norm > 0
     acc[valid] /= norm[valid, None]
@@ -149,7 +151,8 @@ def euler_characteristic(n_vertices_used: int, faces: IntArray) -> int:
     return int(n_vertices_used - len(e.unique) + len(faces))
 
 
-def degenerate_faces(vertices: FloatArray, faces: IntArray, rel_tol: float = 1e-6) -> BoolArray:
+def degenerate_faces(vertices: FloatArray, faces: IntArray, rel_tol: float = 1e-6, *,
+                     cross: FloatArray | None = None) -> BoolArray:
     """(k,) bool: faces with repeated indices or area below ``rel_tol`` times the squared mean edge length.
 
     ``rel_tol`` 1e-6 of the squared mean edge length is far below any real
@@ -158,7 +161,7 @@ def degenerate_faces(vertices: FloatArray, faces: IntArray, rel_tol: float = 1e-
     f = np.asarray(faces, dtype=np.int64)
     repeated = (f[:, 0] == f[:, 1]) | (f[:, 1] == f[:, 2]) | (f[:, 0] == f[:, 2])
     scale = mean_edge_length(vertices, f) ** 2
-    return repeated | (face_areas(vertices, f) <= rel_tol * scale)
+    return repeated | (face_areas(vertices, f, cross=cross) <= rel_tol * scale)
 
 
 def mean_edge_length(vertices: FloatArray, faces: IntArray) -> float:

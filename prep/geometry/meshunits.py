@@ -128,7 +128,8 @@ def nonfinite_vertices(vertices: np.ndarray, *, file: str, source: str) -> tuple
         return ()
     bad = np.flatnonzero(~ok)
     return (Finding(code="input.nonfinite", severity="fail", subjects=(file,),
-                    message=f"{file}: {bad.size} vertices have NaN or infinite coordinates (first: vertex {int(bad[0])})",
+                    message=f"{file}: {bad.size} vertices have NaN or infinite coordinates "
+                            f"(first: vertex {int(bad[0])})",
                     values={"n_vertices": int(bad.size), "first": int(bad[0])}, source=source),)
 
 

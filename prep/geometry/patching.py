@@ -68,10 +68,18 @@ def decimation_seeds(vertices: FloatArray, faces: IntArray, n_target: int) -> In
     # the extension wants writable C arrays (our model arrays are read-only)
     pts, _ = fast_simplification.simplify(np.array(v, order="C"), np.array(f, order="C"), target_count=n_faces_target)
     pts = np.asarray(pts, dtype=np.float64)
-    # fast-simplification keeps unreferenced input points; only the decimated surface's vertices count
+    # snap the decimated vertices back onto vertices of the original surface
     tree = cKDTree(v[used])
     _, nearest = tree.query(pts, k=1)
     seeds = np.unique(used[nearest])
+    if len(seeds) > n_target and n_target < 8:
+        # decimation stops near a tetrahedron: thin very small targets by farthest-point sampling
+        chosen = [int(np.argmin(np.linalg.norm(v[seeds] - v[used].mean(axis=0), axis=1)))]
+        d = np.linalg.norm(v[seeds] - v[seeds[chosen[0]]], axis=1)
+        while len(chosen) < n_target:
+            chosen.append(int(np.argmax(d)))
+            d = np.minimum(d, np.linalg.norm(v[seeds] - v[seeds[chosen[-1]]], axis=1))
+        seeds = np.sort(seeds[chosen])
     return seeds.astype(np.int64)
 
 
@@ -143,8 +151,9 @@ def recentre_seeds(vertices: FloatArray, patch: IntArray, n_patches: int, weight
     return out
 
 
-def patch_statistics(vertices: FloatArray, faces: IntArray, patch: IntArray,
-                     n_patches: int) -> tuple[FloatArray, FloatArray, FloatArray]:
+def patch_statistics(vertices: FloatArray, faces: IntArray, patch: IntArray, n_patches: int, *,
+                     vertex_area: FloatArray | None = None,
+                     vertex_normal: FloatArray | None = None) -> tuple[FloatArray, FloatArray, FloatArray]:
     """Area, mean normal and normal spread of each patch.
 
     Parameters
@@ -154,6 +163,8 @@ def patch_statistics(vertices: FloatArray, faces: IntArray, patch: IntArray,
     patch : (n,) int64
         Patch of each vertex, -1 for none.
     n_patches : int
+    vertex_area, vertex_normal : (n,) and (n, 3) float64, optional
+        :func:`vertex_areas` and :func:`vertex_normals` if already computed.
 
     Returns
     -------
@@ -170,8 +181,8 @@ def patch_statistics(vertices: FloatArray, faces: IntArray, patch: IntArray,
     v = np.asarray(vertices, dtype=np.float64)
     f = np.asarray(faces, dtype=np.int64)
     p = np.asarray(patch, dtype=np.int64)
-    area = vertex_areas(v, f)
-    nrm, _ = vertex_normals(v, f)
+    area = vertex_areas(v, f) if vertex_area is None else np.asarray(vertex_area)
+    nrm = vertex_normals(v, f)[0] if vertex_normal is None else np.asarray(vertex_normal)
     m = p >= 0
     idx, a, nv = p[m], area[m], nrm[m]
     areas = np.bincount(idx, weights=a, minlength=n_patches)

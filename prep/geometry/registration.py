@@ -150,8 +150,10 @@ def point_to_plane_system(points: FloatArray, targets: FloatArray, normals: Floa
 def _solve_step(a: FloatArray, b: FloatArray, w: FloatArray, damping: float) -> FloatArray:
     ata = (a * w[:, None]).T @ a
     atb = (a * w[:, None]).T @ b
-    ata = ata + damping * np.trace(ata) / 6 * np.eye(6)
-    return np.linalg.solve(ata, atb)
+    tr = np.trace(ata)
+    if not tr > 0:  # every point rejected or weightless: stay where we are
+        return np.zeros(6)
+    return np.linalg.solve(ata + damping * tr / 6 * np.eye(6), atb)
 
 
 def _step_matrix(x: FloatArray) -> FloatArray:
@@ -287,11 +289,12 @@ def bootstrap_step(system: tuple[FloatArray, FloatArray, FloatArray], n_points: 
     a, b, w = system
     rng = np.random.default_rng(seed)
     idx = rng.integers(0, n_points, size=(n_boot, n_points))
-    counts = np.zeros((n_boot, n_points))
-    np.add.at(counts, (np.repeat(np.arange(n_boot), n_points), idx.ravel()), 1.0)
+    flat = (idx + n_points * np.arange(n_boot)[:, None]).ravel()
+    counts = np.bincount(flat, minlength=n_boot * n_points).reshape(n_boot, n_points).astype(float)
     wb = np.concatenate([counts * w[:n_points], np.broadcast_to(w[n_points:], (n_boot, len(w) - n_points))], axis=1)
-    ata = np.einsum("bk,ki,kj->bij", wb, a, a)
-    atb = np.einsum("bk,ki,k->bi", wb, a, b)
+    outer = (a[:, :, None] * a[:, None, :]).reshape(len(a), 36)
+    ata = (wb @ outer).reshape(n_boot, 6, 6)  # one matrix product instead of n_boot normal equations
+    atb = wb @ (a * b[:, None])
     tr = np.trace(ata, axis1=1, axis2=2)[:, None, None]
     steps = np.linalg.solve(ata + damping * tr / 6 * np.eye(6), atb[..., None])[..., 0]
     steps -= steps.mean(axis=0)

@@ -24,9 +24,10 @@ def _write_subject(tmp: Path, sensors: Sensors, s) -> dict[str, Path]:  # noqa: 
     return {"sensors": tmp / "sub_electrodes.tsv", "fiducials": tmp / "mri_fiducials.tsv", "scalp": tmp / "scalp.ply"}
 
 
-def _argv(files: dict[str, Path], *extra: str) -> list[str]:
+def _argv(files: dict[str, Path], *extra: str, units: bool = True) -> list[str]:
+    stated = ["--sensor-units", "mm"] if units else []
     return ["align", "--sensors", str(files["sensors"]), "--scalp", str(files["scalp"]), "--mesh-units", "mm",
-            "--fiducials", str(files["fiducials"]), "--sensor-units", "mm", *extra]
+            "--fiducials", str(files["fiducials"]), *stated, *extra]
 
 
 def test_align_writes_transform_sensors_and_picture(tmp_path: Path, capsys: pytest.CaptureFixture) -> None:
@@ -35,7 +36,7 @@ def test_align_writes_transform_sensors_and_picture(tmp_path: Path, capsys: pyte
                                              headshape=s.sensors.headshape * 1000,
                                              fiducials={k: v * 1000 for k, v in s.sensors.fiducials.items()}), s)
     out = tmp_path / "out"
-    assert main(_argv(files, "--out", str(out), "--json")) == 0
+    assert main(_argv(files, "--out", str(out), "--json", "--set", "n_boot=50", "--set", "off_scalp_warn_m=0.008")) == 0
     doc = json.loads(capsys.readouterr().out)
     t = doc["transform"]
     assert (t["from"], t["to"]) == ("device", "anatomy") and np.asarray(t["matrix"]).shape == (4, 4)
@@ -58,9 +59,10 @@ def test_align_exits_1_on_a_fail_finding(tmp_path: Path, capsys: pytest.CaptureF
                       headshape=s.sensors.headshape * flip * 1000,
                       fiducials={k: v * flip * 1000 for k, v in s.sensors.fiducials.items()})
     files = _write_subject(tmp_path, sensors, s)
-    assert main(_argv(files, "--method", "fiducial")) == 1
+    assert main(_argv(files, "--method", "fiducial", units=False)) == 1
     text = capsys.readouterr().out
     assert "FAIL  placement.mirrored" in text
+    assert "input.units-suspect" in text  # the reader's finding travels with the sensors
 
 
 def test_too_few_points_exits_2_and_writes_nothing(tmp_path: Path, capsys: pytest.CaptureFixture) -> None:
@@ -71,4 +73,7 @@ def test_too_few_points_exits_2_and_writes_nothing(tmp_path: Path, capsys: pytes
     out = tmp_path / "out"
     assert main(_argv(files, "--out", str(out))) == 2
     assert "input.too-few-points:" in capsys.readouterr().err
+    assert not out.exists()
+    assert main(_argv(files, "--out", str(out), "--set", "no_such_option=1")) == 2
+    assert "unknown check option 'no_such_option'" in capsys.readouterr().err
     assert not out.exists()

@@ -142,3 +142,15 @@ def test_icp_recovers_a_small_motion_and_rejects_outliers(ellipsoid: trimesh.Tri
     unc = bootstrap_step(res.system, len(pts), clean)
     assert set(unc) >= {"translation_mm", "rotation_deg", "displacement_mm_95"}
     assert unc["translation_mm"] < 0.1
+
+
+@settings(max_examples=10, deadline=None)
+@given(seed=seeds)
+def test_signed_distance_is_invariant_under_rigid_motion(ellipsoid: trimesh.Trimesh, seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    m = rigid_matrix(Rotation.random(random_state=seed).as_matrix(), rng.normal(0, 0.1, 3))
+    p = rng.normal(0, 0.08, (40, 3))
+    _, d0, f0 = closest_points(ellipsoid.vertices, ellipsoid.faces, p)
+    moved_v = np.asarray(ellipsoid.vertices) @ m[:3, :3].T + m[:3, 3]
+    _, d1, _ = closest_points(moved_v, ellipsoid.faces, p @ m[:3, :3].T + m[:3, 3])
+    assert np.allclose(d0, d1, atol=1e-12)

@@ -58,13 +58,32 @@ def test_run_passport_options_route_to_checks_and_reject_unknown(tmp_path):
     leadfield = LeadField(matrix=lf, sensor_labels=[f"E{i + 1}" for i in range(24)], source_positions=src,
                           source_normals=nrm)
     reg = make_registry(entry_points=False, plugins=[check_leadfield])
-    p = run_passport(reg, leadfield, el, options={"snr": 10.0, "leadfield-depth": {"max_ratio": 1.0}})
+    p = run_passport(reg, leadfield, el, options={"snr": 10.0, "leadfield-depth": {"max_depth_ratio": 1.0}})
     assert p.metrics["leadfield-resolution"]["snr"] == 10.0
     assert "leadfield.depth-bias" in [f.code for f in p.findings]
     with pytest.raises(UsageError, match="unknown option 'snrr'"):
         run_passport(reg, leadfield, el, options={"snrr": 1.0})
     with pytest.raises(UsageError, match="must be float"):
-        run_passport(reg, leadfield, el, options={"leadfield-depth": {"max_ratio": "big"}})
-    files = passport_pngs(p, tmp_path / "png")
+        run_passport(reg, leadfield, el, options={"leadfield-depth": {"max_depth_ratio": "big"}})
+    files = passport_pngs(p, tmp_path / "png", src)
     assert [f.name for f in files] == list(PNG_NAMES.values())
+    assert len(passport_pngs(p, tmp_path / "png4")) == 4  # no positions: no map
     assert all(f.stat().st_size > 1000 for f in files)
+
+
+def test_run_passport_ignores_options_of_other_checks():
+    from prep import Check, hookimpl
+
+    class OtherCheck:  # a check of another target, as the recipe's flat [checks] section mixes them
+        @staticmethod
+        @hookimpl
+        def headprep_register_checks():
+            return [Check(name="other", target="sensors", run=lambda **kw: [], defaults={"gap_m": 0.01})]
+
+    lf, el, src, nrm = sphere_leadfield(16, 40)
+    leadfield = LeadField(matrix=lf, sensor_labels=[f"E{i + 1}" for i in range(16)], source_positions=src,
+                          source_normals=nrm)
+    reg = make_registry(entry_points=False, plugins=[check_leadfield, OtherCheck])
+    p = run_passport(reg, leadfield, el, options={"gap_m": 0.5, "max_condition": 1e9, "psf_chunk": 7})
+    assert p.metrics["leadfield-spectrum"]["n_sensors"] == 16
+    assert "other" not in p.metrics

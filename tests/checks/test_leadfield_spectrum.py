@@ -106,7 +106,7 @@ def test_depth_profile_on_the_sphere_and_threshold():
     # superficial sources are stronger on a sphere (potential falls with distance): from memory
     assert report.metrics["ratio"] > 1.0
     assert not report.findings
-    strict = _run("leadfield-depth", _lf(lf, src), el, max_ratio=1.0)
+    strict = _run("leadfield-depth", _lf(lf, src), el, max_depth_ratio=1.0)
     assert [f.code for f in strict.findings] == ["leadfield.depth-bias"]
 
 

@@ -184,3 +184,45 @@ def test_label_sides() -> None:
     assert (side("C3"), side("C4"), side("Cz"), side("FT10"), side("AFF1h"), side("EOG")) == (-1, 1, 0, 1, -1, 0)
     cp = check_placement.counterpart
     assert (cp("Fp1"), cp("T8"), cp("Oz"), cp("CCP5h")) == ("Fp2", "T7", None, "CCP6h")
+
+
+@pytest.mark.parametrize("shape", SHAPES)
+def test_with_the_installed_rules_template(scalps: dict, shape: str) -> None:
+    """Integration: electrodes where the installed template puts 10-10, then a planted far and near swap."""
+    reg = make_registry()
+    if not reg.descriptors("montage_template"):
+        pytest.skip("no montage template installed")
+    s = subject(shape, 70, surface=scalps[shape])
+    tpl = reg.descriptors("montage_template")[0]
+    ref = tpl.place(s.scalp, s.anatomy_fiducials, system="10-10")
+    rng = np.random.default_rng(70)
+    inv = np.linalg.inv(s.truth)
+    pos = ref.positions @ inv[:3, :3].T + inv[:3, 3] + rng.normal(0, 0.002, ref.positions.shape)
+    sensors = replace(s.sensors, labels=ref.labels, positions=pos, kinds=None, original_labels=None)
+    clean = place_sensors(reg, sensors, s.scalp, s.anatomy_fiducials)
+    assert not _codes(clean, "fail"), _codes(clean, "fail")
+    assert clean.report.metrics["placement"]["swap_check"] == "reference layout"
+    res = place_sensors(reg, _relabel(sensors, {"Fp1": "O2", "O2": "Fp1", "C3": "C1", "C1": "C3"}),
+                        s.scalp, s.anatomy_fiducials)
+    swaps = {subj for code, subj in _codes(res, "fail") if code == "placement.swapped"}
+    assert swaps == {frozenset({"Fp1", "O2"}), frozenset({"C3", "C1"})}
+
+
+@pytest.mark.parametrize("factor", [1000.0, 0.1])
+def test_wrong_units_end_in_a_misfit_not_a_crash(scalps: dict, factor: float) -> None:
+    s = subject("bumpy", 2, surface=scalps["bumpy"])
+    k = factor  # millimetres read as metres, or centimetres read as millimetres
+    bad = replace(s.sensors, positions=s.sensors.positions * k, headshape=s.sensors.headshape * k,
+                  fiducials={a: v * k for a, v in s.sensors.fiducials.items()})
+    res = place_sensors(_registry(template=False), bad, s.scalp, s.anatomy_fiducials)
+    assert ("placement.misfit", "fail") in {(f.code, f.severity) for f in res.findings}
+
+
+def test_non_finite_electrode_is_carried_not_checked(scalps: dict) -> None:
+    s = subject("bumpy", 2, surface=scalps["bumpy"])
+    pos = s.sensors.positions.copy()
+    pos[3] = np.nan
+    res = place_sensors(_registry(), replace(s.sensors, positions=pos), s.scalp, s.anatomy_fiducials)
+    row = res.report.metrics["placement"]["electrodes"][3]
+    assert row["signed_distance_m"] is None and row["projected_m"] is None
+    assert not _codes(res, "fail")

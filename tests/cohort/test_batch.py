@@ -43,6 +43,15 @@ def _jitter_bids(src: Path, dst: Path, seed: int) -> None:
     dst.write_text("\n".join(out) + "\n")
 
 
+def _decimated_ply(path: Path, keep: float = 0.15) -> bytes:
+    import fast_simplification
+    import trimesh
+
+    mesh = trimesh.load(path, process=False, force="mesh")
+    v, f = fast_simplification.simplify(np.asarray(mesh.vertices), np.asarray(mesh.faces), 1.0 - keep)
+    return trimesh.Trimesh(v, f, process=False).export(file_type="ply")
+
+
 @pytest.fixture(scope="module")
 def cohort_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
     import tomllib
@@ -52,6 +61,7 @@ def cohort_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
     recipe = tomllib.loads((demo / "recipe.toml").read_text())
     inputs = recipe["inputs"]
     names = [f"sub-{i:02d}" for i in range(1, N_GOOD + 1)] + list(BAD)
+    small_cortex = {f: _decimated_ply(demo / f) for f in inputs["cortex"]}
     for k, name in enumerate(names):
         sub = root / name
         sub.mkdir()
@@ -63,6 +73,8 @@ def cohort_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
                     if side.is_file():
                         shutil.copy(side, sub / side.name)
         _jitter_bids(demo / inputs["sensors"], sub / inputs["sensors"], seed=k)
+        for f in inputs["cortex"]:  # smaller cortices keep the cohort tests quick
+            (sub / f).write_bytes(small_cortex[f])
     with open(root / "sub-bad-row" / inputs["sensors"], "a") as fh:
         fh.write("Oops\t1.0\tnot-a-number\t3.0\tEEG\n")
     (root / "sub-bad-mesh" / inputs["scalp"]).write_bytes(b"this is not a mesh\n" * 10)
@@ -78,7 +90,7 @@ def cohort_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
 
     subjects = "\n".join(entry(n) for n in names)
     (root / "cohort.toml").write_text(
-        '[cohort]\nname = "jitter"\n[shared.patches]\ncount = 400\n[shared.align]\nmethod = "surface"\n'
+        '[cohort]\nname = "jitter"\n[shared.patches]\ncount = 300\n[shared.align]\nmethod = "surface"\n'
         + subjects + "\n")
     return root
 

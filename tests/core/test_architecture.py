@@ -15,24 +15,8 @@ PLUGINS = ROOT / "plugins"
 
 
 def _imports(path: Path) -> set[str]:
-    """Absolute module names imported by a file (relative imports resolved inside its package)."""
-    tree = ast.parse(path.read_text(encoding="utf-8"))
-    pkg_parts = ["prep" if path.is_relative_to(CORE) else "prep_plugins",
-                 *path.relative_to(CORE if path.is_relative_to(CORE) else PLUGINS).parent.parts]
-    out = set()
-    for node in ast.walk(tree):
-        if isinstance(node, ast.Import):
-            out |= {a.name for a in node.names}
-        elif isinstance(node, ast.ImportFrom):
-            if node.level:
-                base = pkg_parts[: len(pkg_parts) - node.level + 1]
-                mod = ".".join(base + ([node.module] if node.module else []))
-                out.add(mod)
-                out |= {f"{mod}.{a.name}" for a in node.names}
-            elif node.module:
-                out.add(node.module)
-                out |= {f"{node.module}.{a.name}" for a in node.names}
-    return out
+    """Absolute module names imported anywhere in a file (relative imports resolved in its package)."""
+    return set().union(*(_imports_of_node(n, path) for n in ast.walk(ast.parse(path.read_text(encoding="utf-8")))))
 
 
 def test_core_never_imports_builtin_plugins() -> None:
@@ -42,14 +26,21 @@ def test_core_never_imports_builtin_plugins() -> None:
 
 
 def test_plugins_never_import_each_other() -> None:
+    plugins = sorted((p.stem for p in PLUGINS.glob("*.py") if not p.stem.startswith("_")), key=len, reverse=True)
+
+    def owner(stem: str) -> str:
+        """A private module ``_<plugin>_<topic>`` belongs to ``<plugin>``."""
+        if not stem.startswith("_"):
+            return stem
+        return next((name for name in plugins if stem.startswith(f"_{name}_")), stem)
+
     offenders = []
     for p in PLUGINS.glob("*.py"):
+        mine = owner(p.stem)
         for m in _imports(p):
-            if m.startswith("prep_plugins") and m not in ("prep_plugins",):
-                target = m.split(".")[1]
-                # a plugin may use its own private helper modules: plugins/_<plugin>_<topic>.py
-                if not (target.startswith("_") and target.startswith(f"_{p.stem.lstrip('_')}")):
-                    offenders.append(f"{p.name} imports {m}")
+            parts = m.split(".")
+            if parts[0] == "prep_plugins" and len(parts) > 1 and owner(parts[1]) != mine:
+                offenders.append(f"{p.name} imports {m}")
     assert offenders == [], offenders
 
 
@@ -86,18 +77,16 @@ def test_core_modules_have_no_import_cycles() -> None:
 
 
 def _imports_of_node(node: ast.AST, path: Path) -> set[str]:
-    pkg = ["prep", *path.relative_to(CORE).parent.parts]
+    top, pkg = (CORE, "prep") if path.is_relative_to(CORE) else (PLUGINS, "prep_plugins")
+    parts = [pkg, *path.relative_to(top).parent.parts]
     out = set()
     if isinstance(node, ast.Import):
         out |= {a.name for a in node.names}
     elif isinstance(node, ast.ImportFrom):
-        if node.level:
-            base = pkg[: len(pkg) - node.level + 1]
-            mod = ".".join(base + ([node.module] if node.module else []))
-            out.add(mod)
-            out |= {f"{mod}.{a.name}" for a in node.names}
-        elif node.module:
-            out.add(node.module)
+        mod = ".".join(parts[: len(parts) - node.level + 1] + ([node.module] if node.module else [])) \
+            if node.level else node.module or ""
+        out.add(mod)
+        out |= {f"{mod}.{a.name}" for a in node.names}
     return out
 
 

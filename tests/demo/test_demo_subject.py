@@ -72,6 +72,14 @@ def test_meshes_are_closed_and_outward(meshes: dict[str, trimesh.Trimesh]) -> No
         assert mesh.volume > 0, name               # positive signed volume: normals point out
 
 
+@pytest.mark.parametrize("name", ["scalp", "outer_skull", "inner_skull", "cortex_left", "cortex_right"])
+def test_meshes_do_not_cross_themselves(meshes: dict[str, trimesh.Trimesh], name: str) -> None:
+    pymeshfix = pytest.importorskip("pymeshfix")
+    tin = pymeshfix.PyTMesh()
+    tin.load_array(np.asarray(meshes[name].vertices, dtype=np.float64), np.asarray(meshes[name].faces, dtype=np.int32))
+    assert np.size(tin.select_intersecting_triangles()) == 0  # pymeshfix
+
+
 def test_vertex_counts_match_the_scenario(meshes: dict[str, trimesh.Trimesh]) -> None:
     counts = {name: len(m.vertices) for name, m in meshes.items()}
     assert 5_000 <= counts["scalp"] <= 10_000

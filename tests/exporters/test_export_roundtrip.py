@@ -76,3 +76,15 @@ def test_cli_export_is_atomic_and_refuses_to_overwrite(tmp_path, capsys):
     assert main(["export", str(path), "--to", "mat", "--option", "version=4", "--out", str(tmp_path / "x.mat")]) == 2
     assert not (tmp_path / "x.mat").exists()
     assert [p.name for p in tmp_path.iterdir() if p.name.startswith(".")] == []
+
+
+def test_hdf5_exporter_is_listed_unavailable_without_h5py(monkeypatch, tmp_path, capsys):
+    import importlib.util
+
+    real = importlib.util.find_spec
+    monkeypatch.setattr(importlib.util, "find_spec", lambda name, *a: None if name == "h5py" else real(name, *a))
+    reg = make_registry(entry_points=False, plugins=[export_mat, export_hdf5])
+    assert [(d.name, missing) for d, missing in reg.unavailable("exporter")] == [("hdf5", ["h5py"])]
+    path = write_sphere_bundle(tmp_path / "b.bundle", n_sensors=8, n_sources=20)
+    assert main(["export", str(path), "--to", "hdf5", "--out", str(tmp_path / "x.h5")]) == 2
+    assert "unavailable" in capsys.readouterr().err and not (tmp_path / "x.h5").exists()

@@ -190,3 +190,45 @@ def test_preset_replaces_conductivities(model_162, cache):
                           cache_dir=str(cache))
     assert m.params["preset_source"].startswith("skull 1/80")
     np.testing.assert_allclose(m.conductor.conductivities, [0.33, 0.33 / 80, 0.33])
+
+
+def test_linear_weights_match_quadrature_and_backends() -> None:
+    # one triangle, two field points: the closed form against a fine midpoint rule (numpy reference)
+    from prep_plugins._forward_bem_kernels import LinearDoubleLayer
+
+    tri = np.array([[0.0, 0.0, 0.0], [1.0, 0.0, 0.0], [0.2, 0.9, 0.0]]) * 0.01
+    op = LinearDoubleLayer(tri, np.array([[0, 1, 2]]))
+    r = np.array([[0.003, 0.002, -0.004], [0.02, -0.01, 0.003]])
+    n = 600
+    a, b = np.meshgrid((np.arange(n) + 1 / 3) / n, (np.arange(n) + 1 / 3) / n)
+    keep = a + b < 1
+    a, b = a[keep], b[keep]
+    x = tri[0] + a[:, None] * (tri[1] - tri[0]) + b[:, None] * (tri[2] - tri[0])
+    psi = np.stack([1 - a - b, a, b], 1)
+    for backend in ("numpy", "auto"):
+        w = op.weights(r, backend=backend)
+        for i in range(2):
+            d = x - r[i]
+            k = d[:, 2] / np.linalg.norm(d, axis=1) ** 3
+            quad = (psi * k[:, None]).mean(0) * 0.5 * np.linalg.norm(np.cross(tri[1] - tri[0], tri[2] - tri[0]))
+            np.testing.assert_allclose(w[i], quad, rtol=2e-3)
+
+
+def test_weights_of_closed_mesh_sum_to_solid_angle() -> None:
+    # a closed surface subtends 4 pi inside and 0 outside (Gauss); backends agree to rounding
+    from prep_plugins._forward_bem_kernels import LinearDoubleLayer
+
+    v, f = icosphere(3)
+    op = LinearDoubleLayer(v * 0.09, f)
+    pts = np.array([[0.0, 0.0, 0.0], [0.01, 0.02, 0.03], [0.2, 0.0, 0.0]])
+    w = op.weights(pts, backend="numpy")
+    np.testing.assert_allclose(w.sum(axis=1), [4 * np.pi, 4 * np.pi, 0.0], atol=1e-10)
+    np.testing.assert_allclose(op.weights(np.vstack([pts, v[:50] * 0.09]), backend="auto"),
+                               op.weights(np.vstack([pts, v[:50] * 0.09]), backend="numpy"), atol=1e-10)
+
+
+def test_electrode_rows_only_equal_cached_scalp_solution(model_162) -> None:
+    # cache=False solves only for the electrodes' rows; same transfer matrix to rounding
+    direct = forward_bem.build(model_162.conductor, model_162.sensor_labels, _electrodes(), cache=False)
+    np.testing.assert_allclose(direct.arrays["transfer"], model_162.arrays["transfer"],
+                               atol=1e-9 * np.abs(model_162.arrays["transfer"]).max())

@@ -67,26 +67,66 @@ def sphere_leadfield(n_sensors: int = 64, n_sources: int = 300, radius: float = 
     return lf, el, src, nrm
 
 
-def write_sphere_bundle(path, n_sensors: int = 32, n_sources: int = 150, radius: float = 0.09, seed: int = 0,
-                        reference: str | int = "average", leadfield: np.ndarray | None = None):
-    """Write a small bundle around a homogeneous-sphere lead field; returns its path.
+def registry_sphere_model(electrodes: np.ndarray, registry=None):
+    """The kit's own "spheres" forward solver on a 3-shell head (radii 81/85/90 mm), or None if absent."""
+    from prep import VolumeConductor, make_registry
+    from prep.forward import build_forward
 
-    ``leadfield`` replaces the computed matrix (e.g. to plant a fault).
+    reg = registry or make_registry()
+    if "spheres" not in [d.name for d in reg.descriptors("forward_solver")]:
+        return None
+    cond = VolumeConductor(kind="spheres", conductivities=[0.33, 0.0042, 0.33], centre=[0.0, 0.0, 0.0],
+                           radii=[0.081, 0.085, 0.09])  # common textbook 3-shell values
+    return build_forward(reg, cond, [f"E{i + 1}" for i in range(len(electrodes))], electrodes)
+
+
+def write_sphere_bundle(path, n_sensors: int = 32, n_sources: int = 150, radius: float = 0.09, seed: int = 0,
+                        reference: str | int = "average", leadfield: np.ndarray | None = None,
+                        model: str = "frank"):
+    """Write a small bundle around a sphere lead field; returns its path.
+
+    ``model="frank"``: the closed form above (no forward state stored);
+    ``model="spheres"``: the kit's sphere solver, with its state stored so the
+    bundle's forward model can be restored. ``leadfield`` replaces the matrix
+    (e.g. to plant a fault).
     """
     from prep import VolumeConductor
     from prep.bundle import write_bundle
 
     lf, el, src, nrm = sphere_leadfield(n_sensors, n_sources, radius, seed, reference)
+    labels = [f"E{i + 1}" for i in range(n_sensors)]
+    ref = "average" if reference == "average" else labels[int(reference)]
+    conductor = VolumeConductor(kind="spheres", conductivities=[0.33], centre=[0.0, 0.0, 0.0], radii=[radius])
+    forward = {"solver": "spheres", "reference": ref, "params": {}}
+    if model == "spheres":
+        from prep.forward import forward_state
+
+        fm = registry_sphere_model(el)
+        lf = fm.leadfield(src, nrm).matrix
+        conductor = fm.conductor
+        forward = forward_state(fm)[0]["forward"]
     if leadfield is not None:
         lf = leadfield
-    labels = [f"E{i + 1}" for i in range(n_sensors)]
-    conductor = VolumeConductor(kind="spheres", conductivities=[0.33], centre=[0.0, 0.0, 0.0], radii=[radius])
-    ref = "average" if reference == "average" else labels[int(reference)]
     manifest = {"kit": {"name": "headprep", "version": "test"}, "frame": "anatomy",
                 "sensors": {"labels": labels}, "findings": [], "inputs": [], "plugins": [], "parameters": {},
-                "forward": {"solver": "spheres", "reference": ref, "params": {}},
-                "head_model": conductor.describe()}
+                "forward": forward, "head_model": conductor.describe()}
     arrays = {"leadfield": lf, "sensor_positions": el, "source_positions": src, "source_normals": nrm,
               "source_areas": np.full(n_sources, 1e-5), "source_spread": np.zeros(n_sources),
               "source_hemisphere": (src[:, 0] > 0).astype(np.int8)}
     return write_bundle(path, manifest, arrays)
+
+
+def sphere_forward_model(electrodes: np.ndarray, radius: float = 0.09):
+    """A ForwardModel evaluating the closed form at any position (average reference)."""
+    from prep import ForwardModel, VolumeConductor
+
+    def evaluate(pos, normals):
+        out = np.stack([frank_potential(electrodes, pos, np.tile(e, (len(pos), 1)), radius) for e in np.eye(3)],
+                       axis=2)
+        out -= out.mean(axis=0)
+        return out if normals is None else np.einsum("nmk,mk->nm", out, normals)
+
+    cond = VolumeConductor(kind="spheres", conductivities=[0.33], centre=[0, 0, 0], radii=[radius])
+    return ForwardModel(solver="test-sphere", conductor=cond,
+                        sensor_labels=[f"E{i + 1}" for i in range(len(electrodes))],
+                        sensor_positions=electrodes, evaluate=evaluate)

@@ -3,9 +3,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from inverse_solvers.frank_sphere import fibonacci_sphere, frank_potential, series_potential, sphere_leadfield
+from inverse_solvers.frank_sphere import (fibonacci_sphere, frank_potential, registry_sphere_model, series_potential,
+                                          sphere_forward_model, sphere_leadfield)
 
-from prep import ForwardModel, InverseProblem, LeadField, VolumeConductor, make_registry
+from prep import InverseProblem, LeadField, make_registry
 from prep_plugins import inverse_dipole, inverse_minnorm
 
 RADIUS = 0.09
@@ -24,18 +25,6 @@ def sphere():
     return leadfield, el
 
 
-def _sphere_forward(el):
-    """A ForwardModel evaluating the closed-form sphere at any position (free orientation, average ref)."""
-    def evaluate(pos, normals):
-        out = np.stack([frank_potential(el, pos, np.tile(e, (len(pos), 1)), RADIUS) for e in np.eye(3)], axis=2)
-        out -= out.mean(axis=0)
-        return out if normals is None else np.einsum("nmk,mk->nm", out, normals)
-
-    cond = VolumeConductor(kind="spheres", conductivities=[0.33], centre=[0, 0, 0], radii=[RADIUS])
-    return ForwardModel(solver="test-sphere", conductor=cond, sensor_labels=[f"E{i + 1}" for i in range(len(el))],
-                        sensor_positions=el, evaluate=evaluate)
-
-
 def test_frank_closed_form_matches_legendre_series():
     el = fibonacci_sphere(6, RADIUS)
     src, q = np.array([[0.01, -0.02, 0.04]]), np.array([[0.2, 0.5, -0.8]])
@@ -44,8 +33,14 @@ def test_frank_closed_form_matches_legendre_series():
     np.testing.assert_allclose(closed - closed.mean(), series - series.mean(), rtol=1e-6)
 
 
-def test_sloreta_localises_a_noiseless_dipole_exactly(reg, sphere):
-    lf, _ = sphere
+@pytest.mark.parametrize("model", ["frank-closed-form", "spheres-plugin"])
+def test_sloreta_localises_a_noiseless_dipole_exactly(reg, sphere, model):
+    lf, el = sphere
+    if model == "spheres-plugin":  # the kit's own 3-shell sphere solver, when installed
+        fm = registry_sphere_model(el)
+        if fm is None:
+            pytest.skip("no 'spheres' forward solver installed")
+        lf = fm.leadfield(lf.source_positions, lf.source_normals)
     solver = reg.get("inverse_solver", "sloreta")
     for j in (0, 57, 123, 399):  # zero localisation error without noise: Pascual-Marqui 2002
         data = lf.matrix[:, [j]] * 1e-8
@@ -77,7 +72,7 @@ def test_dipole_fit_grid_search_finds_the_patch_without_a_forward_model(reg, sph
 
 def test_dipole_fit_recovers_an_off_grid_dipole_with_the_forward_model(reg, sphere):
     lf, el = sphere
-    fwd = _sphere_forward(el)
+    fwd = sphere_forward_model(el, RADIUS)
     true_pos = np.array([[0.012, -0.018, 0.047]])  # not a patch centre
     moment = np.array([[2e-8, -1e-8, 3e-8]])
     data = fwd.evaluate(true_pos, moment / np.linalg.norm(moment))[:, :1] * np.linalg.norm(moment)
@@ -86,3 +81,24 @@ def test_dipole_fit_recovers_an_off_grid_dipole_with_the_forward_model(reg, sphe
     assert np.linalg.norm(est.positions[0] - true_pos[0]) < 2e-4  # noiseless: exact up to the optimiser tolerance
     np.testing.assert_allclose(est.moments[0, :, 0], moment[0], rtol=0.02)
     assert est.metrics["residual_variance"] < 1e-6
+
+
+def test_dipole_fit_steps_around_positions_the_model_refuses(reg, sphere):
+    from dataclasses import replace
+
+    from prep import UsageError
+
+    lf, el = sphere
+    fwd = sphere_forward_model(el, RADIUS)
+
+    def guarded(pos, normals):
+        if np.any(np.linalg.norm(pos, axis=1) > 0.07):  # like a model that cannot place a source there
+            raise UsageError("outside the innermost compartment")
+        return fwd.evaluate(pos, normals)
+
+    true_pos = np.array([[0.0, 0.02, 0.066]])  # 69 mm from the centre: the search brushes the limit
+    data = fwd.evaluate(true_pos, np.array([[0.0, 0.0, 1.0]])) * 1e-8
+    est = reg.get("inverse_solver", "dipole-fit").solve(
+        InverseProblem(leadfield=lf, data=data, forward=replace(fwd, evaluate=guarded)))
+    assert np.linalg.norm(est.positions[0]) <= 0.07
+    assert np.linalg.norm(est.positions[0] - true_pos[0]) < 0.005

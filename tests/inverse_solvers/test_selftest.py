@@ -43,3 +43,27 @@ def test_selftest_help_explains_why_the_leadfield_is_not_inverted(capsys):
         main(["selftest", "--help"])
     text = capsys.readouterr().out
     assert "no inverse" in text and "regularisation" in text
+
+
+def test_selftest_dipole_fit_uses_a_given_forward_model(tmp_path):
+    from inverse_solvers.frank_sphere import sphere_forward_model
+
+    bundle = load_bundle(write_sphere_bundle(tmp_path / "b.bundle", n_sensors=32, n_sources=120))
+    reg = make_registry(entry_points=False, plugins=[inverse_dipole])
+    fwd = sphere_forward_model(bundle.arrays["sensor_positions"], 0.09)
+    res = run_selftest(reg, bundle, snr=1e6, n_dipoles=3, seed=2, forward=fwd)
+    assert res.forward == "forward model"
+    # noiseless data of a patch dipole: the continuous fit lands on the patch (optimiser tolerance, from memory)
+    assert res.summary["dipole-fit"]["max_mm"] < 0.5
+
+
+def test_selftest_restores_the_bundle_forward_model(tmp_path):
+    path = write_sphere_bundle(tmp_path / "b.bundle", n_sensors=32, n_sources=120, model="spheres")
+    bundle = load_bundle(path)
+    reg = make_registry()
+    if "spheres" not in [d.name for d in reg.descriptors("forward_solver")]:
+        pytest.skip("no 'spheres' forward solver installed")
+    res = run_selftest(reg, bundle, snr=1e6, n_dipoles=2, seed=4, solvers=["dipole-fit", "sloreta"])
+    assert res.forward == "forward model"
+    assert res.summary["sloreta"]["max_mm"] == 0.0  # Pascual-Marqui 2002
+    assert res.summary["dipole-fit"]["max_mm"] < 0.5  # noiseless, optimiser tolerance (from memory)

@@ -210,3 +210,21 @@ def test_bad_options(reg, sphere) -> None:
         _make(reg, [sphere], islands="merge")
     with pytest.raises(UsageError):
         _make(reg, [], count=10)
+
+
+def test_inward_wound_cortex_gets_outward_normals(reg, sphere, sphere_patches) -> None:
+    inverted = Surface(vertices=sphere.vertices, faces=sphere.faces[:, ::-1], role="cortex")
+    p = _make(reg, [inverted], count=1000)
+    assert "mesh.inverted" in {x.code for x in p.findings}
+    assert (np.einsum("ij,ij->i", p.normals, p.centres) > 0).all()  # radial, outward
+
+
+def test_one_file_with_both_hemispheres(reg) -> None:
+    half = trimesh.creation.icosphere(subdivisions=4, radius=0.05)
+    v = np.vstack([half.vertices - [0.055, 0, 0], half.vertices + [0.055, 0, 0]])
+    f = np.vstack([half.faces, half.faces + len(half.vertices)])
+    p = _make(reg, [Surface(vertices=v, faces=f, role="cortex")], count=200)
+    assert "mesh.islands" not in {x.code for x in p.findings}  # two main pieces, not an island
+    assert (p.vertex_patch >= 0).all()
+    np.testing.assert_array_equal(p.hemisphere, (p.centres[:, 0] > 0).astype(np.int8))  # RAS: +x right
+    assert abs((p.hemisphere == 0).sum() - 100) <= 5

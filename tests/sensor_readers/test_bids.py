@@ -61,7 +61,8 @@ def test_landmarks_of_another_system_are_not_used(reg, write):
 
 
 def test_headshape_rows_and_na(reg, write):
-    rows = "name\tx\ty\tz\ttype\nCz\t0\t0\t95\tcup\nHSP01\t1\t2\t90\tn/a\nX\t3\t4\t88\theadshape\nFp1\tn/a\tn/a\tn/a\tcup\n"
+    rows = ("name\tx\ty\tz\ttype\nCz\t0\t0\t95\tcup\nHSP01\t1\t2\t90\tn/a\nX\t3\t4\t88\theadshape\n"
+            "Fp1\tn/a\tn/a\tn/a\tcup\n")
     s = read_sensors(reg, _pair(write, rows, {"EEGCoordinateSystem": "Other", "EEGCoordinateUnits": "mm"}))
     assert s.labels == ("Cz", "Fp1") and len(s.headshape) == 2
     assert np.isnan(s.positions[1]).all()

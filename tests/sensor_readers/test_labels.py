@@ -1,4 +1,7 @@
-"""Label normalisation (10-10 names: Chatrian, Lettich & Nelson 1985; ACNS guideline; 10-5: Oostenveld & Praamstra 2001)."""
+"""Label normalisation.
+
+10-10 names: Chatrian, Lettich & Nelson 1985 and the ACNS guideline; 10-5: Oostenveld & Praamstra 2001.
+"""
 from __future__ import annotations
 
 import pytest

@@ -8,6 +8,8 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
+
 from prep import make_registry
 from prep.cli import main
 from prep.testing import assert_reader_conforms
@@ -43,13 +45,26 @@ def test_scaffolded_reader_passes_the_conformance_suite(tmp_path, capsys):
     assert s.provenance.unit == "cm" and len(s) == 5
 
 
-def test_scaffolded_package_runs_its_own_test(tmp_path, capsys):
+@pytest.mark.slow
+def test_scaffolded_package_installs_and_passes_its_own_test(tmp_path, capsys):
+    """pip-install the scaffold into a private directory (not the running environment), then run its test
+    and ``headprep inspect`` with that directory on the path: the reader is found through its entry point."""
     pkg = _scaffold(tmp_path, capsys)
-    env = {**os.environ, "PYTHONPATH": str(pkg)}
+    site = tmp_path / "site"
+    pip = subprocess.run([sys.executable, "-m", "pip", "install", "-q", "--no-deps", "--no-build-isolation",
+                          "--no-index", "--target", str(site), str(pkg)], capture_output=True, text=True)
+    if pip.returncode != 0 and ("bdist_wheel" in pip.stderr or "No module named" in pip.stderr):
+        pytest.skip(f"no usable build backend in this environment: {pip.stderr.strip().splitlines()[-1]}")
+    assert pip.returncode == 0, pip.stderr
+    env = {**os.environ, "PYTHONPATH": str(site)}
     out = subprocess.run([sys.executable, "-m", "pytest", "-q", "-p", "no:cacheprovider", str(pkg / "tests")],
-                         capture_output=True, text=True, env=env, cwd=pkg)
+                         capture_output=True, text=True, env=env, cwd=tmp_path)
     assert out.returncode == 0, out.stdout + out.stderr
     assert "1 passed" in out.stdout
+    out = subprocess.run([sys.executable, "-m", "prep", "inspect", str(pkg / "tests" / "session.pts"), "--json"],
+                         capture_output=True, text=True, env=env, cwd=tmp_path)
+    assert out.returncode == 0, out.stderr
+    assert json.loads(out.stdout)["reader"] == "wand_pts"
 
 
 def test_scaffold_refuses_existing_target_and_bad_name(tmp_path, capsys):

@@ -97,3 +97,9 @@ def test_na_is_nan_not_an_error(reg, write):
 def test_quoted_csv_and_trailing_delimiter(reg, write):
     s = read_sensors(reg, write("k.csv", 'label,x,y,z\n"EOG  left, upper",1,2,3,\n" fp 1 ",1,2,3\n'), units="m")
     assert s.labels == ("EOG left, upper", "Fp1") and s.kinds == ("eog", "eeg")
+
+
+def test_other_x_columns_are_not_coordinates(reg, write):
+    s = read_sensors(reg, write("l.csv", "label,x_err,x_mm,y_mm,z_mm\nCz,0.5,0,0,95\n"))
+    assert s.provenance.unit == "mm"
+    np.testing.assert_allclose(s.positions, [[0, 0, 0.095]])

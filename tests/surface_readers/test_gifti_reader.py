@@ -7,6 +7,8 @@ import nibabel as nib
 import numpy as np
 import pytest
 import trimesh
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from prep import make_registry
 from prep.errors import ReadError
@@ -77,3 +79,18 @@ def test_missing_triangles(reg, tmp_path: Path) -> None:
     nib.save(nib.gifti.GiftiImage(darrays=[pts]), str(path))
     with pytest.raises(ReadError, match="TRIANGLE"):
         read_surface(reg, path, "cortex")
+
+
+@settings(max_examples=20, deadline=None)
+@given(st.integers(4, 60), st.sampled_from(["mm", "cm", "m"]), st.integers(0, 2**32 - 1))
+def test_roundtrip_property(tmp_path_factory, n: int, unit: str, seed: int) -> None:
+    """Any float32 pointset and triangle list written by nibabel reads back with the declared unit applied."""
+    rng = np.random.default_rng(seed)
+    v = rng.uniform(-100, 100, size=(n, 3)).astype(np.float32)
+    f = rng.integers(0, n, size=(2 * n, 3))
+    path = _write(tmp_path_factory.mktemp("g") / "s.surf.gii", v, f, {"LengthUnit": unit})
+    surf = surface_gifti.read_gifti(path)
+    scale = {"mm": 1e-3, "cm": 1e-2, "m": 1.0}[unit]
+    np.testing.assert_allclose(surf.vertices, v.astype(np.float64) * scale, rtol=1e-12)
+    np.testing.assert_array_equal(surf.faces, f)
+    assert surf.provenance.unit_source == "declared"

@@ -89,7 +89,7 @@ def test_left_right_mirror(sphere_1010):
 def test_inion_estimated_with_info_finding(sphere):
     s = montage_rules.place(*sphere, system="10-20")
     np.testing.assert_allclose(s.fiducials["inion"], [0, -R, 0], atol=1e-4)
-    assert [f.code for f in s.findings] == ["input.fiducial-missing"] and s.findings[0].severity == "info"
+    assert [f.code for f in s.findings] == ["input.landmark-estimated"] and s.findings[0].severity == "info"
 
 
 def test_missing_fiducial_and_unknown_system(sphere):
@@ -140,3 +140,18 @@ def test_cz_halves_both_arcs_on_an_ellipsoid(egg):
     centre = (fids["lpa"] + fids["rpa"]) / 2
     cor = plane_arc(mesh, fids["lpa"], fids["rpa"], d["Cz"], centre, samples=2001)
     assert abs(cor.length_at(d["Cz"]) / cor.length - 0.5) < 0.005
+
+
+def test_open_bottom_mesh_and_lifted_fiducials():
+    """A scalp cut below the ears (open) and fiducials digitized 4 mm off the skin still place on the skin."""
+    mesh = trimesh.creation.icosphere(subdivisions=4, radius=R)
+    keep = mesh.vertices[mesh.faces].mean(axis=1)[:, 2] > -0.04
+    mesh = trimesh.Trimesh(mesh.vertices, mesh.faces[keep], process=True)
+    assert not mesh.is_watertight
+    lift = (R + 0.004) / R
+    fids = {"nasion": np.array([0, R, 0]) * lift, "lpa": np.array([-R, 0, 0]) * lift,
+            "rpa": np.array([R, 0, 0]) * lift}
+    s = montage_rules.place(_surface(mesh), fids, system="10-5")
+    assert np.all(np.isfinite(s.positions))
+    _, dist, _ = trimesh.proximity.closest_point(mesh, s.positions)
+    assert dist.max() < 1e-6  # on the mesh (trimesh closest point)

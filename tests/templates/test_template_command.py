@@ -50,3 +50,15 @@ def test_template_unknown_system(tmp_path, capsys):
     assert main(["template", "--system", "10-15", "--scalp", str(scalp), "--fiducials", str(fids),
                  "--out", str(tmp_path / "o_electrodes.tsv")]) == 2
     assert "10-15" in capsys.readouterr().err
+
+
+def test_bare_electrodes_tsv_reads_back_with_its_sidecar(tmp_path, capsys):
+    scalp, fids = _inputs(tmp_path)
+    out = tmp_path / "electrodes.tsv"
+    assert main(["template", "--scalp", str(scalp), "--fiducials", str(fids), "--out", str(out)]) == 0
+    assert (tmp_path / "coordsystem.json").is_file()
+    capsys.readouterr()
+    assert main(["inspect", str(out), "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["reader"] == "bids" and doc["units"] == {"unit": "m", "source": "declared"}
+    assert doc["counts"]["eeg"] == 89 and doc["counts"]["fiducials"] == 4

@@ -1,0 +1,82 @@
+"""Benchmark of the boundary-element solver: 3 x 2,562 vertices, 128 electrodes, 8,000 patches.
+
+Prints the time of the layer solve (assembly + factorisation + transfer), of the
+lead field, the total, its ratio to scipy.linalg.lu_factor of a matrix of the
+same size timed in this run (the BLAS floor), and the process's peak memory.
+Targets (issue): total < 60 s on 2 cores, ratio <= 3, peak memory < 6 GB.
+
+Run: python benchmarks/bench_bem.py [--subdivisions 4] [--sources 8000] [--electrodes 128]
+"""
+from __future__ import annotations
+
+import argparse
+import resource
+import sys
+import tempfile
+import time
+
+import numpy as np
+import scipy.linalg as sla
+
+from prep import Surface, VolumeConductor, make_registry
+from prep.geometry.layers import icosphere
+
+
+def _points_in_ball(n: int, radius: float, rng: np.random.Generator) -> np.ndarray:
+    d = rng.normal(size=(n, 3))
+    d /= np.linalg.norm(d, axis=1, keepdims=True)
+    return d * radius * rng.uniform(0.2, 1.0, size=(n, 1)) ** (1 / 3)
+
+
+def main(argv: list[str] | None = None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--subdivisions", type=int, default=4, help="icosphere level (4: 2,562 vertices)")
+    ap.add_argument("--sources", type=int, default=8000)
+    ap.add_argument("--electrodes", type=int, default=128)
+    args = ap.parse_args(argv)
+    rng = np.random.default_rng(7)
+    v, f = icosphere(args.subdivisions)
+    radii = (0.087, 0.092, 0.100)
+    layers = tuple(Surface(vertices=v * r * np.array([0.95, 1.1, 1.0]), faces=f, role=role)
+                   for r, role in zip(radii, ("inner_skull", "outer_skull", "scalp")))
+    cond = VolumeConductor(kind="layers", conductivities=[0.33, 0.0042, 0.33], layers=layers)
+    ele = _points_in_ball(args.electrodes, 1.0, rng)
+    ele = ele / np.linalg.norm(ele, axis=1, keepdims=True)
+    ele[:, 2] = np.abs(ele[:, 2])
+    ele *= 0.1 * np.array([0.95, 1.1, 1.0])
+    labels = tuple(f"E{i:03d}" for i in range(len(ele)))
+    src = _points_in_ball(args.sources, 0.075, rng)
+    nrm = rng.normal(size=src.shape)
+    nrm /= np.linalg.norm(nrm, axis=1, keepdims=True)
+    n = 3 * len(v)
+
+    a = rng.normal(size=(n, n))
+    t0 = time.perf_counter()
+    sla.lu_factor(a, overwrite_a=True, check_finite=False)
+    t_lu = time.perf_counter() - t0
+    del a
+
+    desc = make_registry().get("forward_solver", "bem")
+    with tempfile.TemporaryDirectory() as cache:
+        t0 = time.perf_counter()
+        model = desc.build(cond, labels, ele, reference="average", cache=False, cache_dir=cache)
+        t_build = time.perf_counter() - t0
+        t0 = time.perf_counter()
+        lf = model.evaluate(src, nrm)
+        t_lf = time.perf_counter() - t0
+    total = t_build + t_lf
+    peak_gb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024 ** 2
+    out = sys.stdout
+    out.write(f"layers: 3 x {len(v)} vertices ({n} unknowns); {len(ele)} electrodes; {len(src)} sources\n")
+    out.write(f"scipy lu_factor {n}x{n} (floor)      {t_lu:8.2f} s\n")
+    out.write(f"layer solve (assembly+LU+transfer)  {t_build:8.2f} s\n")
+    out.write(f"lead field ({lf.shape[0]} x {lf.shape[1]})         {t_lf:8.2f} s\n")
+    out.write(f"total                               {total:8.2f} s   (target < 60 s)\n")
+    out.write(f"ratio total / lu_factor             {total / t_lu:8.2f}     (target <= 3)\n")
+    out.write(f"peak memory (max RSS)               {peak_gb:8.2f} GB  (target < 6 GB)\n")
+    out.write(f"finite: {bool(np.isfinite(lf).all())}\n")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
