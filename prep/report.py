@@ -345,4 +345,6 @@ dl.facts{display:grid;grid-template-columns:max-content 1fr;gap:2px 16px;margin:
 dl.facts dt{color:var(--soft)}dl.facts dd{margin:0}
 .hash-text{font:12px ui-monospace,"DejaVu Sans Mono",monospace;word-break:break-all}
 footer{color:var(--soft);font-size:13px;margin-top:24px}
+@media print{body{background:#fff}nav{display:none}.scroll{max-height:none;overflow:visible}
+.part,.verdict{break-inside:avoid-page;border-color:#999}}
 """

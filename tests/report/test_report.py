@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 
 from conftest import LIFTED, SPARSE, SUNK, make_synthetic_bundle
+from prep import PluginError, ReportSection, hookimpl, make_registry
 from prep.bundle import load_bundle
 from prep.cli import main
 from prep.model import Finding
@@ -103,6 +104,33 @@ def test_verdict_lists_at_most_a_few_deciding_findings(sparse_bundle: Path, regi
     page = Page(build_report(b, registry))
     assert "and 3 more of the same severity" in page.by_id["verdict"]
     assert int(page.by_id["count-fail"]) == MAX_DECIDING + 3
+
+
+class _ThirdParty:
+    """A throwaway plugin with two sections, one of which crashes."""
+
+    @staticmethod
+    @hookimpl
+    def headprep_register_report_sections() -> list[ReportSection]:
+        return [ReportSection(name="zz_first", title="Mine", order=-5, render=lambda b, a: "<p>mine</p>"),
+                ReportSection(name="aa_empty", order=50, render=lambda b, a: ""),
+                ReportSection(name="boom", order=60, render=lambda b, a: 1 / 0)]
+
+
+def test_sections_of_any_plugin_sort_by_order_and_crashes_name_the_plugin(sparse_bundle: Path) -> None:
+    b = load_bundle(sparse_bundle)
+    with pytest.raises(PluginError, match="boom"):
+        build_report(b, make_registry(entry_points=False, plugins=[_ThirdParty()]))
+
+    class Quiet:
+        @staticmethod
+        @hookimpl
+        def headprep_register_report_sections() -> list[ReportSection]:
+            return _ThirdParty.headprep_register_report_sections()[:2]
+
+    page = Page(build_report(b, make_registry(entry_points=False, plugins=[Quiet()])))
+    # the verdict stays first even before a section of negative order; empty sections are left out
+    assert page.section_ids == ["verdict", "s-zz_first"]
 
 
 def test_assets_refuse_pictures_without_alt_text() -> None:
