@@ -155,6 +155,14 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
         raise UsageError(f"{args.sensors}: no EEG channels")
     positions, normals, lines = read_sources(src_path)
     conductor = _conductor(args, ctx, eeg.positions, eeg.frame)
+    if conductor.kind == "layers":  # a boundary-element model would give zero columns: refuse instead
+        from ..layers import sources_outside
+
+        found = sources_outside(conductor, positions)
+        if found:
+            i = int(found[0].values["rows"][0])
+            raise ReadError(src_path, lines[i], f"source {i} lies outside the inner skull mesh "
+                                                f"({len(found[0].values['rows'])} such sources)")
     outside = outside_innermost(conductor, positions)
     if outside.any():
         i = int(np.flatnonzero(outside)[0])
