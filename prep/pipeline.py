@@ -19,6 +19,7 @@ from . import forward as fwd
 from .bundle import ArraySpec, verify_bundle, write_bundle
 from .checks import run_checks, validate_check_options
 from .errors import UsageError
+from .findings import verdict
 from .geometry.meshcheck import repair_surface
 from .geometry.surface import closest_points
 from .model import FIDUCIALS, Finding, Patches, Sensors, Surface, Transform
@@ -75,12 +76,6 @@ class RunResult:
     summary: dict[str, Any]
     verdict: str
     report: Path | None = None
-
-
-def verdict(findings: list[Finding]) -> str:
-    """``fail`` if any fail finding, ``review`` if any warn, else ``pass``."""
-    sev = {f.severity for f in findings}
-    return "fail" if "fail" in sev else "review" if "warn" in sev else "pass"
 
 
 # ------------------------------------------------------------------ reading

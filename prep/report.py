@@ -27,6 +27,7 @@ import numpy as np
 from .atomic import write_text_atomic
 from .bundle import Bundle, load_bundle
 from .errors import UsageError
+from .findings import verdict
 from .model import Finding
 
 __all__ = ["VERDICTS", "Assets", "Markup", "verdict_of", "deciding_findings", "build_report", "write_report",
@@ -45,10 +46,7 @@ _VERDICT_TEXT = {
 
 
 # ------------------------------------------------------------------ verdict
-def verdict_of(findings: Iterable[Finding]) -> str:
-    """``"fail"`` if any finding is a fail, ``"review"`` if any is a warn, else ``"pass"``."""
-    sev = {f.severity for f in findings}
-    return "fail" if "fail" in sev else "review" if "warn" in sev else "pass"
+verdict_of = verdict  # the one rule, kept in prep.findings
 
 
 def deciding_findings(findings: Iterable[Finding]) -> list[Finding]:
