@@ -171,8 +171,9 @@ class LinearDoubleLayer:
         total = None
         for c in range(3):
             lin = self.one_minus_gx[c][None, :] + rm[:, (2 + c) * k:(3 + c) * k]
-            line = ge[0] * self.coef[c, 0] + ge[1] * self.coef[c, 1] + ge[2] * self.coef[c, 2]
-            w = lin * omega - h * line
+            with np.errstate(invalid="ignore"):  # NaN only at the corners, zeroed on the next line
+                line = ge[0] * self.coef[c, 0] + ge[1] * self.coef[c, 1] + ge[2] * self.coef[c, 2]
+                w = lin * omega - h * line
             w[corner] = 0.0
             part = np.asarray(self.scatter[c].T.dot(w.T)).T
             total = part if total is None else total + part

@@ -19,6 +19,7 @@ from . import forward as fwd
 from .bundle import ArraySpec, verify_bundle, write_bundle
 from .checks import run_checks, validate_check_options
 from .errors import UsageError
+from .findings import verdict
 from .geometry.meshcheck import repair_surface
 from .geometry.surface import closest_points
 from .model import FIDUCIALS, Finding, Patches, Sensors, Surface, Transform
@@ -75,12 +76,6 @@ class RunResult:
     summary: dict[str, Any]
     verdict: str
     report: Path | None = None
-
-
-def verdict(findings: list[Finding]) -> str:
-    """``fail`` if any fail finding, ``review`` if any warn, else ``pass``."""
-    sev = {f.severity for f in findings}
-    return "fail" if "fail" in sev else "review" if "warn" in sev else "pass"
 
 
 # ------------------------------------------------------------------ reading
@@ -235,17 +230,17 @@ def _conductor(registry: Registry, recipe: Recipe, inputs: SubjectInputs, sensor
         cond = fwd.sphere_conductor(sensor_positions, centre=centre, radii=radii, conductivities=sigma)
         return cond, findings
     if model == "bem":
-        from .layers import check_layers, derive_layers
+        from .layers import check_layers, derive_head
 
-        inner, outer = inputs.inner_skull, inputs.outer_skull
-        if inner is None or outer is None:
-            outer_d, inner_d = derive_layers(inputs.scalp)
-            outer = outer or outer_d
-            inner = inner or inner_d
-            findings.append(Finding(code="layers.derived", severity="info",
-                                    message="skull layers were derived from the scalp by inward offsets",
-                                    source="pipeline"))
-        layers = (inner, outer, inputs.scalp)
+        if inputs.inner_skull is None:
+            # template-style preparation: remesh the scalp and offset the skull layers inward
+            layers, derived = derive_head(inputs.scalp, outer_skull=inputs.outer_skull)
+            findings += derived
+        else:
+            if inputs.outer_skull is None:
+                raise UsageError(f"{recipe.where('inputs')}: an inner skull without an outer skull; give both "
+                                 f"or neither (then both are derived from the scalp)")
+            layers = (inputs.inner_skull, inputs.outer_skull, inputs.scalp)
         findings += check_layers(registry, layers)
         sigma = hm.get("conductivities")
         if sigma is None:
@@ -286,7 +281,7 @@ def step_forward(registry: Registry, recipe: Recipe, inputs: SubjectInputs, alig
         arrays["leadfield_free"] = fm.leadfield(centres, None).matrix
     if "leadfield" not in arrays:  # the passport and the bundle's accessors need the fixed one
         arrays["leadfield"] = np.einsum("nmk,mk->nm", arrays["leadfield_free"], normals)
-    state, state_arrays = fwd.forward_state(fm)
+    state, state_arrays = fwd.forward_state(fm)      # ({"forward": {...}}, {"forward_<key>": array})
     arrays.update(state_arrays)
     if conductor.kind == "layers":
         for i, s in enumerate(conductor.layers):
@@ -496,6 +491,7 @@ def _write(registry: Registry, recipe: Recipe, inputs: SubjectInputs, path: Path
         "sensors": int(lf.shape[0]), "sources": int(lf.shape[1]),
         "fit_rms_mm": _mm(align.meta["alignment"]["metrics"].get("rms_m")),
         "condition_number": _find_number(cond, "condition_number"),
+        "localisation_error_median_mm": _find_number(_find_dict(cond, "peak_localisation_error"), "p50_mm"),
         "head_model": forward.meta["head_model"]["kind"],
         "flagged_electrodes": sum(bool(e["codes"]) for e in align.meta["placement"]["per_electrode"]),
         "findings": {s: sum(f.severity == s for f in findings) for s in ("fail", "warn", "info")},
@@ -505,6 +501,18 @@ def _write(registry: Registry, recipe: Recipe, inputs: SubjectInputs, path: Path
 
 def _mm(x: Any) -> float | None:
     return None if x is None else round(float(x) * 1e3, 3)
+
+
+def _find_dict(doc: Any, key: str) -> Any:
+    """First mapping stored under ``key`` anywhere in a nested dict, or None."""
+    if isinstance(doc, dict):
+        if isinstance(doc.get(key), dict):
+            return doc[key]
+        for v in doc.values():
+            found = _find_dict(v, key)
+            if found is not None:
+                return found
+    return None
 
 
 def _find_number(doc: Any, key: str) -> float | None:

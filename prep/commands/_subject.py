@@ -17,6 +17,10 @@ def add_output_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="print one JSON document on stdout")
 
 
+def _mm(x: float | None) -> str:
+    return "n/a" if x is None else f"{x:.1f} mm"
+
+
 def human_summary(res) -> str:  # noqa: ANN001 - pipeline.RunResult
     s = res.summary
     fit = f"{s['fit_rms_mm']:.2f} mm" if s.get("fit_rms_mm") is not None else "n/a"
@@ -29,6 +33,7 @@ def human_summary(res) -> str:  # noqa: ANN001 - pipeline.RunResult
         f"  head model           {s['head_model']}",
         f"  fit residual (RMS)   {fit}",
         f"  condition number     {cond}",
+        f"  localisation error   {_mm(s.get('localisation_error_median_mm'))} (median point-spread peak error, minimum norm)",
         f"  findings             {counts['fail']} fail, {counts['warn']} warn, {counts['info']} info",
         f"  bundle (verified)    {res.bundle}",
     ]

@@ -174,6 +174,14 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
     _refuse_nonfinite(sensors)
     positions, normals, lines = read_sources(src_path)
     conductor = _conductor(args, ctx, eeg.positions, eeg.frame)
+    if conductor.kind == "layers":  # a boundary-element model would give zero columns: refuse instead
+        from ..layers import sources_outside
+
+        found = sources_outside(conductor, positions)
+        if found:
+            i = int(found[0].values["rows"][0])
+            raise ReadError(src_path, lines[i], f"source {i} lies outside the inner skull mesh "
+                                                f"({len(found[0].values['rows'])} such sources)")
     # what the readers noticed (units assumed from the size...) is shown, as in the other commands
     findings = [*sensors.findings, *(f for layer in conductor.layers or () for f in layer.findings)]
     outside = outside_innermost(conductor, positions)
