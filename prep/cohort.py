@@ -142,8 +142,9 @@ def load_cohort(path: str | os.PathLike[str], *, work: str | None = None, out: s
         base_dir = p.parent
     else:
         raise UsageError(f"{p}: cohort file or folder not found")
-    work_dir = Path(work or cfg.get("work") or base_dir / "headprep-work").resolve()
-    out_dir = Path(out or cfg.get("out") or base_dir / "headprep-bundles").resolve()
+    # options are relative to where the user stands; the cohort file's own paths to the file
+    work_dir = (Path(work) if work else base_dir / cfg.get("work", "headprep-work")).resolve()
+    out_dir = (Path(out) if out else base_dir / cfg.get("out", "headprep-bundles")).resolve()
     tasks, seen = [], set()
     for recipe, base in entries:
         merged = _merge(shared, recipe)

@@ -140,6 +140,14 @@ def read_inputs(registry: Registry, recipe: Recipe) -> SubjectInputs:
                          inner_skull=skulls["inner_skull"], cortex=cortex, files=files, findings=findings)
 
 
+def _without_nonfinite_channels(inputs: SubjectInputs) -> SubjectInputs:
+    """Leave out channels whose coordinates are not finite (the sensor checks report them)."""
+    finite = np.isfinite(inputs.sensors.positions).all(axis=1)
+    if finite.all():
+        return inputs
+    return replace(inputs, sensors=inputs.sensors.select(finite))
+
+
 # ------------------------------------------------------------------ steps
 def step_align(registry: Registry, recipe: Recipe, inputs: SubjectInputs) -> StepResult:
     """Co-register, place and check the electrodes; keep the scalp electrodes for the model."""
@@ -408,6 +416,7 @@ def prepare_subject(registry: Registry, recipe: Recipe, *, out: str | os.PathLik
     for surf in [inputs.scalp, inputs.outer_skull, inputs.inner_skull, *inputs.cortex]:
         if surf is not None:
             findings += run_checks(registry, "surface", surface=surf, options=recipe.steps.get("checks")).findings
+    inputs = _without_nonfinite_channels(inputs)
     step("checks of inputs")
     from . import __version__
 
