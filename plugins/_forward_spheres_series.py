@@ -220,11 +220,10 @@ def remainder_sums(f: F64, t: F64, w: F64, budget: float) -> tuple[F64, F64]:
     ptab, dptab = _legendre_tables(np.cos(theta), n_deg)
     deg = np.arange(1, n_deg + 1, dtype=np.float64)[:, None]
     coef1 = (2 * deg + 1) * w[1:n_deg + 1, None] * f[None, :] ** (deg - 1)   # (N, m); 0**0 = 1
-    # (m, nodes + 4): one source per row, so the gathers below stay within a row
     # (m, nodes + 4): one source per row, so each gather below stays within a row
     grid1 = coef1.T @ ptab
     grid2 = (coef1 / deg).T @ dptab
-    tt = t.T                                            # (m, n)
+    tt = np.ascontiguousarray(t.T)                      # (m, n), C order: gathers run along rows
     u = np.arccos(tt) / h
     k0 = np.minimum(np.floor(u), nodes - 1)
     x = u - k0
@@ -235,9 +234,12 @@ def remainder_sums(f: F64, t: F64, w: F64, budget: float) -> tuple[F64, F64]:
     g1, g2 = grid1.ravel(), grid2.ravel()
     r1 = np.zeros_like(tt)
     r2 = np.zeros_like(tt)
+    buf = np.empty_like(tt)
     for j, wj in enumerate(weights):
-        r1 += wj * np.take(g1[j:], flat)             # shifted views: no index arithmetic per node
-        r2 += wj * np.take(g2[j:], flat)
+        for grid, acc in ((g1, r1), (g2, r2)):
+            np.take(grid[j:], flat, out=buf)       # shifted views: no index arithmetic per node
+            buf *= wj
+            acc += buf
     return r1.T, r2.T
 
 

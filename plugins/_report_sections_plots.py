@@ -10,13 +10,21 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+from typing import Protocol
+
 import numpy as np
 from matplotlib.ticker import NullLocator
 
 from prep import render
 from prep.report import Assets
 
-from ._report_sections_data import Mesh
+
+class Mesh(Protocol):
+    """What is drawn of a mesh (``_report_sections_data.Mesh``; helpers do not import each other)."""
+
+    role: str
+    vertices: np.ndarray  # (n, 3) float64, metres
+    faces: np.ndarray  # (k, 3) int64
 
 #: plane name -> (normal axis, horizontal axis, vertical axis, horizontal words, vertical words)
 PLANES = {

@@ -8,14 +8,20 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Protocol
 
 import numpy as np
 
 from prep import render
 from prep.report import Assets
 
-from ._report_sections_data import Electrodes, Mesh
+
+class Mesh(Protocol):
+    """What is drawn of a mesh (``_report_sections_data.Mesh``; helpers do not import each other)."""
+
+    role: str
+    vertices: np.ndarray  # (n, 3) float64, metres
+    faces: np.ndarray  # (k, 3) int64
 
 #: view name -> (camera direction from the centre, view-up)
 VIEWS: dict[str, tuple[tuple[float, float, float], tuple[float, float, float]]] = {
@@ -59,15 +65,23 @@ def _look(p, centre_mm: np.ndarray, radius_mm: float, view: str) -> None:  # noq
 
 
 def _start(p) -> None:  # noqa: ANN001
-    """Show once off-screen so later ``render()`` calls draw (pyvista renders nothing before ``show``)."""
+    """Show once off-screen so later ``render()`` calls draw (pyvista renders nothing before ``show``).
+
+    Multisampling is off: with software EGL (Mesa llvmpipe) 4x multisampling
+    made each view of a 60k-vertex cortex about 3x slower, and FXAA is not
+    available with EGL builds of VTK (it falls back to costlier SSAA).
+    """
+    p.render_window.SetMultiSamples(0)
     p.show(auto_close=False, interactive=False)
 
 
-def electrode_views(assets: Assets, scalp: Mesh | None, el: Electrodes, limit_mm: float,
+def electrode_views(assets: Assets, scalp: Mesh | None, el: Any, limit_mm: float,
                     views: Sequence[str] = ("front", "left", "right", "top"),
                     headshape: np.ndarray | None = None) -> list[str]:
     """One ``<figure>`` per view: the scalp with electrodes coloured by signed distance (mm).
 
+    ``el`` is an ``Electrodes`` record of ``_report_sections_data`` (labels, drawn
+    positions, signed distances, flagged indices).
     Flagged electrodes are labelled by name. ``limit_mm`` is the symmetric colour limit.
     ``headshape`` (h, 3) metres, if given, is drawn as small dark points.
     """
@@ -177,8 +191,14 @@ def painted_views(assets: Assets, dataset, colourings: Sequence[Colouring], *, s
 
 
 def cortex_views(assets: Assets, cortex: Mesh, colourings: Sequence[Colouring]) -> list[list[str]]:
-    """The cortex painted per vertex by each colouring (NaN where no patch: grey)."""
-    return painted_views(assets, _polydata(cortex), colourings, subject="Cortex", smooth_shading=True)
+    """The cortex painted per vertex by each colouring (NaN where no patch: grey).
+
+    Vertex normals are computed once for smooth shading (pyvista's ``smooth_shading``
+    would recompute them per colouring: about 2 s each for 60k vertices here).
+    """
+    surf = _polydata(cortex).compute_normals(cell_normals=False, point_normals=True, split_vertices=False,
+                                             consistent_normals=False, auto_orient_normals=False)
+    return painted_views(assets, surf, colourings, subject="Cortex")
 
 
 def source_cloud_views(assets: Assets, positions: np.ndarray, colourings: Sequence[Colouring]) -> list[list[str]]:

@@ -14,6 +14,14 @@ import numpy as np
 from prep import FIDUCIALS, Check, Finding, Sensors, hookimpl
 
 
+def _where_in_file(sensors: Sensors, idx: list[int]) -> str:
+    """'line 5, 9' from the reader's record of each channel's line; else the channels' 1-based order."""
+    lines = sensors.provenance.extra.get("channel_lines")
+    if lines is not None and len(lines) == len(sensors) and all(lines[i] for i in idx):
+        return ("lines " if len(idx) > 1 else "line ") + ", ".join(str(lines[i]) for i in idx)
+    return ("channels " if len(idx) > 1 else "channel ") + ", ".join(str(i + 1) for i in idx) + " in file order"
+
+
 def check_sensors(sensors: Sensors) -> list[Finding]:
     """Findings about labels, coordinates and fiducials of ``sensors``.
 
@@ -35,14 +43,16 @@ def check_sensors(sensors: Sensors) -> list[Finding]:
             origs = sorted({sensors.original_labels[i] for i in idx})
             out.append(Finding(code="input.duplicate-label", severity="fail", subjects=(label,),
                                message=f"{where}: label {label} is used by {n} channels "
-                                       f"(rows {', '.join(str(i + 1) for i in idx)}; written as {', '.join(origs)})",
+                                       f"({_where_in_file(sensors, idx)}; written as {', '.join(origs)})",
                                values={"count": n, "indices": idx}, source="check_sensors"))
     bad = ~np.all(np.isfinite(sensors.positions), axis=1) if len(sensors) else np.zeros(0, bool)
     if bad.any():
-        labels = [sensors.labels[i] for i in np.flatnonzero(bad)]
+        idx = np.flatnonzero(bad).tolist()
+        labels = [sensors.labels[i] for i in idx]
         out.append(Finding(code="input.nonfinite", severity="fail", subjects=tuple(labels),
-                           message=f"{where}: missing or non-finite coordinates for {', '.join(labels)}",
-                           values={"indices": np.flatnonzero(bad).tolist()}, source="check_sensors"))
+                           message=f"{where}: missing or non-finite coordinates for {', '.join(labels)} "
+                                   f"({_where_in_file(sensors, idx)})",
+                           values={"indices": idx}, source="check_sensors"))
     missing = [f for f in FIDUCIALS if f not in sensors.fiducials]
     if missing:
         out.append(Finding(code="input.fiducial-missing", severity="warn", subjects=tuple(missing),

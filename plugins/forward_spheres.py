@@ -69,8 +69,10 @@ def _make_evaluate(conductor: VolumeConductor, dirs: np.ndarray, ref_row: int | 
 
     def evaluate(positions: np.ndarray, normals: np.ndarray | None) -> np.ndarray:
         """Lead field (n, m) for fixed or (n, m, 3) for free orientation, V/(A*m)."""
-        src = np.asarray(positions, dtype=np.float64) - conductor.centre
-        nrm = None if normals is None else np.asarray(normals, dtype=np.float64)
+        src = np.asarray(positions, dtype=np.float64).reshape(-1, 3) - conductor.centre
+        nrm = None if normals is None else np.asarray(normals, dtype=np.float64).reshape(-1, 3)
+        if nrm is not None and nrm.shape != src.shape:
+            raise ValueError(f"normals {nrm.shape} do not match positions {src.shape}")
         b = np.linalg.norm(src, axis=1)
         outside = ~(b < radii[0])
         if outside.any():
@@ -103,7 +105,7 @@ def _make_evaluate(conductor: VolumeConductor, dirs: np.ndarray, ref_row: int | 
         if ref_row is None:
             out -= out.mean(axis=0, keepdims=True)
         else:
-            out -= out[ref_row][None]
+            out -= out[ref_row].copy()[None]
         return out
 
     return evaluate

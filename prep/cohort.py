@@ -142,8 +142,9 @@ def load_cohort(path: str | os.PathLike[str], *, work: str | None = None, out: s
         base_dir = p.parent
     else:
         raise UsageError(f"{p}: cohort file or folder not found")
-    work_dir = Path(work or cfg.get("work") or base_dir / "headprep-work").resolve()
-    out_dir = Path(out or cfg.get("out") or base_dir / "headprep-bundles").resolve()
+    # options are relative to where the user stands; the cohort file's own paths to the file
+    work_dir = (Path(work) if work else base_dir / cfg.get("work", "headprep-work")).resolve()
+    out_dir = (Path(out) if out else base_dir / cfg.get("out", "headprep-bundles")).resolve()
     tasks, seen = [], set()
     for recipe, base in entries:
         merged = _merge(shared, recipe)
@@ -293,7 +294,11 @@ def _run_processes(tasks: list[SubjectTask], workers: int, report: bool,
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
     results = []
-    with ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("spawn")) as pool:
+    # a fork server imports the kit once and forks a clean worker per slot: no per-worker import cost,
+    # and no fork of a process that already runs BLAS threads
+    mp = multiprocessing.get_context("forkserver")
+    mp.set_forkserver_preload(["numpy", "scipy.linalg", "trimesh", "prep.pipeline", "prep.registry"])
+    with ProcessPoolExecutor(max_workers=workers, mp_context=mp) as pool:
         futs = {pool.submit(run_subject_task, t, report=report): t for t in tasks}
         for fut in as_completed(futs):
             try:
@@ -346,7 +351,7 @@ def _run_dask(tasks: list[SubjectTask], workers: int, scheduler: str | None, rep
 
 # ------------------------------------------------------------------ summary tables
 COLUMNS = ("subject", "status", "verdict", "fit_rms_mm", "flagged_electrodes", "condition_number",
-           "sensors", "sources", "codes", "error")
+           "localisation_error_mm", "sensors", "sources", "codes", "error")
 
 
 def _row(r: Mapping[str, Any]) -> dict[str, Any]:
@@ -354,9 +359,14 @@ def _row(r: Mapping[str, Any]) -> dict[str, Any]:
     flagged = s.get("flagged_electrodes")
     return {"subject": r["subject"], "status": r["status"], "verdict": r.get("verdict") or "",
             "fit_rms_mm": s.get("fit_rms_mm", ""), "flagged_electrodes": "" if flagged is None else flagged,
-            "condition_number": s.get("condition_number", ""), "sensors": s.get("sensors", ""),
+            "condition_number": s.get("condition_number", ""),
+            "localisation_error_mm": _round(s.get("localisation_error_median_mm")), "sensors": s.get("sensors", ""),
             "sources": s.get("sources", ""), "codes": " ".join(r.get("codes") or []),
             "error": r.get("error") or ""}
+
+
+def _round(x: Any, digits: int = 1) -> Any:
+    return "" if x is None else round(float(x), digits)
 
 
 def write_cohort_tables(results: list[dict[str, Any]], out: Path, name: str) -> tuple[Path, Path]:

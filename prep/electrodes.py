@@ -191,8 +191,10 @@ def _settle_unit(path: str, unit: str | None, unit_source: str | None, channels:
         return guess, "assumed", [_units_finding(
             f"{path}: no length unit given; assumed {guess} because the {what} fits a human head in {guess}",
             path, {**values, "assumed_unit": guess})]
+    why = ("too few points to judge one" if not math.isfinite(value)
+           else f"the {what} fits a human head in no unit")
     return "m", "assumed", [_units_finding(
-        f"{path}: no length unit given and the {what} fits no unit; assumed metres",
+        f"{path}: no length unit given and {why}; assumed metres",
         path, {**values, "assumed_unit": "m"})]
 
 
@@ -231,7 +233,7 @@ def assemble(path: str | os.PathLike[str], points: Sequence[Point], *, reader: s
     path_s = str(path)
     if not points and not landmarks:
         raise ReadError(path, None, "no data rows (empty file or header only)")
-    labels, originals, kinds, rows, heads = [], [], [], [], []
+    labels, originals, kinds, rows, heads, lines = [], [], [], [], [], []
     fids: dict[str, np.ndarray] = {}
     out_findings = list(findings)
     for pt in points:
@@ -253,6 +255,7 @@ def assemble(path: str | os.PathLike[str], points: Sequence[Point], *, reader: s
             originals.append(info.original)
             kinds.append(info.kind)
             rows.append(xyz)
+            lines.append(pt.line)
     for name, value in (landmarks or {}).items():
         fids[name] = np.asarray(value, dtype=np.float64)
     raw = np.array(rows, dtype=np.float64).reshape(-1, 3)
@@ -270,6 +273,6 @@ def assemble(path: str | os.PathLike[str], points: Sequence[Point], *, reader: s
                    headshape=heads_arr[np.all(np.isfinite(heads_arr), axis=1)], kinds=tuple(kinds),
                    original_labels=tuple(originals),
                    provenance=Provenance(file=path_s, reader=reader, unit=unit, unit_source=unit_source,
-                                         extra=dict(extra or {})),
+                                         extra={**(extra or {}), "channel_lines": lines}),
                    findings=tuple(out_findings) + tuple(unit_findings))
 

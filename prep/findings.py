@@ -6,6 +6,8 @@ New codes may be added; existing ones keep their meaning.
 from __future__ import annotations
 
 import re
+from collections.abc import Iterable
+from typing import Any
 
 #: code -> one-line meaning.  Plugins may emit codes not listed here as long as
 #: they match CODE_PATTERN and are documented in docs/findings.md.
@@ -60,3 +62,9 @@ CODES: dict[str, str] = {
 CODE_PATTERN = re.compile(r"^[a-z][a-z0-9]*\.[a-z0-9][a-z0-9-]*$")
 
 SEVERITIES = ("fail", "warn", "info")
+
+
+def verdict(findings: Iterable[Any]) -> str:
+    """A subject's verdict: ``fail`` if any finding is a fail, ``review`` if any is a warn, else ``pass``."""
+    sev = {f.severity for f in findings}
+    return "fail" if "fail" in sev else "review" if "warn" in sev else "pass"

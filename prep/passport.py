@@ -17,6 +17,7 @@ from typing import Any
 
 import numpy as np
 
+from .atomic import make_dirs
 from .descriptors import CheckReport
 from .errors import PluginError, UsageError
 from .model import Finding, LeadField, _jsonable
@@ -187,8 +188,7 @@ def passport_pngs(passport: Passport, outdir: str | os.PathLike[str],
     """
     from .render import figure, save_figure_png
 
-    out = Path(outdir)
-    out.mkdir(parents=True, exist_ok=True)
+    out = make_dirs(outdir)
     a = passport.arrays
     written: list[Path] = []
     if "singular_values" in a:

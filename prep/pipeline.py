@@ -19,6 +19,7 @@ from . import forward as fwd
 from .bundle import ArraySpec, verify_bundle, write_bundle
 from .checks import run_checks, validate_check_options
 from .errors import UsageError
+from .findings import verdict
 from .geometry.meshcheck import repair_surface
 from .geometry.surface import closest_points
 from .model import FIDUCIALS, Finding, Patches, Sensors, Surface, Transform
@@ -75,12 +76,6 @@ class RunResult:
     summary: dict[str, Any]
     verdict: str
     report: Path | None = None
-
-
-def verdict(findings: list[Finding]) -> str:
-    """``fail`` if any fail finding, ``review`` if any warn, else ``pass``."""
-    sev = {f.severity for f in findings}
-    return "fail" if "fail" in sev else "review" if "warn" in sev else "pass"
 
 
 # ------------------------------------------------------------------ reading
@@ -143,6 +138,14 @@ def read_inputs(registry: Registry, recipe: Recipe) -> SubjectInputs:
         cortex.append(surf)
     return SubjectInputs(sensors=sensors, anatomy_fiducials=fids, scalp=scalp, outer_skull=skulls["outer_skull"],
                          inner_skull=skulls["inner_skull"], cortex=cortex, files=files, findings=findings)
+
+
+def _without_nonfinite_channels(inputs: SubjectInputs) -> SubjectInputs:
+    """Leave out channels whose coordinates are not finite (the sensor checks report them)."""
+    finite = np.isfinite(inputs.sensors.positions).all(axis=1)
+    if finite.all():
+        return inputs
+    return replace(inputs, sensors=inputs.sensors.select(finite))
 
 
 # ------------------------------------------------------------------ steps
@@ -286,7 +289,7 @@ def step_forward(registry: Registry, recipe: Recipe, inputs: SubjectInputs, alig
         arrays["leadfield_free"] = fm.leadfield(centres, None).matrix
     if "leadfield" not in arrays:  # the passport and the bundle's accessors need the fixed one
         arrays["leadfield"] = np.einsum("nmk,mk->nm", arrays["leadfield_free"], normals)
-    state, state_arrays = fwd.forward_state(fm)
+    state, state_arrays = fwd.forward_state(fm)      # ({"forward": {...}}, {"forward_<key>": array})
     arrays.update(state_arrays)
     if conductor.kind == "layers":
         for i, s in enumerate(conductor.layers):
@@ -413,6 +416,7 @@ def prepare_subject(registry: Registry, recipe: Recipe, *, out: str | os.PathLik
     for surf in [inputs.scalp, inputs.outer_skull, inputs.inner_skull, *inputs.cortex]:
         if surf is not None:
             findings += run_checks(registry, "surface", surface=surf, options=recipe.steps.get("checks")).findings
+    inputs = _without_nonfinite_channels(inputs)
     step("checks of inputs")
     from . import __version__
 
@@ -496,6 +500,7 @@ def _write(registry: Registry, recipe: Recipe, inputs: SubjectInputs, path: Path
         "sensors": int(lf.shape[0]), "sources": int(lf.shape[1]),
         "fit_rms_mm": _mm(align.meta["alignment"]["metrics"].get("rms_m")),
         "condition_number": _find_number(cond, "condition_number"),
+        "localisation_error_median_mm": _find_number(_find_dict(cond, "peak_localisation_error"), "p50_mm"),
         "head_model": forward.meta["head_model"]["kind"],
         "flagged_electrodes": sum(bool(e["codes"]) for e in align.meta["placement"]["per_electrode"]),
         "findings": {s: sum(f.severity == s for f in findings) for s in ("fail", "warn", "info")},
@@ -505,6 +510,18 @@ def _write(registry: Registry, recipe: Recipe, inputs: SubjectInputs, path: Path
 
 def _mm(x: Any) -> float | None:
     return None if x is None else round(float(x) * 1e3, 3)
+
+
+def _find_dict(doc: Any, key: str) -> Any:
+    """First mapping stored under ``key`` anywhere in a nested dict, or None."""
+    if isinstance(doc, dict):
+        if isinstance(doc.get(key), dict):
+            return doc[key]
+        for v in doc.values():
+            found = _find_dict(v, key)
+            if found is not None:
+                return found
+    return None
 
 
 def _find_number(doc: Any, key: str) -> float | None:

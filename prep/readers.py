@@ -22,8 +22,10 @@ def check_input_file(path: str | os.PathLike[str], what: str = "input") -> Path:
     p = Path(path)
     if not p.exists():
         raise UsageError(f"{p}: {what} file not found")
+    if p.is_dir():
+        raise UsageError(f"{p}: is a folder, not a {what} file")
     if not p.is_file():
-        raise UsageError(f"{p}: {what} is not a file")
+        raise UsageError(f"{p}: {what} is not a regular file")
     if not os.access(p, os.R_OK):
         raise UsageError(f"{p}: {what} file is not readable")
     return p

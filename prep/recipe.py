@@ -10,9 +10,10 @@ See ``docs/recipes.md`` for the full reference.
 """
 from __future__ import annotations
 
+import difflib
 import os
 import tomllib
-from collections.abc import Mapping
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -96,6 +97,13 @@ def _type_name(t: type | tuple[type, ...]) -> str:
     return {"str": "a string", "list": "a list", "bool": "true/false"}.get(t.__name__, t.__name__)
 
 
+def _known(name: str, known: Iterable[str]) -> str:
+    """'did you mean ...? known: ...' for a misspelt section or key."""
+    known = list(known)
+    near = difflib.get_close_matches(name, known, n=1)
+    return (f"did you mean '{near[0]}'? " if near else "") + f"known: {', '.join(known)}"
+
+
 def recipe_from_mapping(data: Mapping[str, Any], *, path: Path | None = None,
                         base: Path | None = None) -> Recipe:
     """Validate a parsed recipe mapping.
@@ -113,7 +121,7 @@ def recipe_from_mapping(data: Mapping[str, Any], *, path: Path | None = None,
     base = base or (path.parent if path else Path.cwd())
     for section in data:
         if section not in SECTIONS:
-            raise UsageError(f"{where}: unknown section [{section}] (known: {', '.join(SECTIONS)})")
+            raise UsageError(f"{where}: unknown section [{section}] ({_known(section, SECTIONS)})")
         if not isinstance(data[section], Mapping):
             raise UsageError(f"{where}: '{section}' must be a [section] table")
     if "subject" not in data:
@@ -122,6 +130,10 @@ def recipe_from_mapping(data: Mapping[str, Any], *, path: Path | None = None,
         raise UsageError(f"{where}: the [inputs] section is missing")
     for section, keys in SECTIONS.items():
         given = data.get(section, {})
+        if section not in OPEN_SECTIONS:  # a misspelt key first: it explains a "missing" one
+            for key in given:
+                if key not in keys:
+                    raise UsageError(f"{where}: [{section}] unknown key '{key}' ({_known(key, keys)})")
         for key, (typ, required) in keys.items():
             if key not in given:
                 if required:
@@ -129,10 +141,6 @@ def recipe_from_mapping(data: Mapping[str, Any], *, path: Path | None = None,
                 continue
             if not isinstance(given[key], typ) or (typ is not bool and isinstance(given[key], bool)):
                 raise UsageError(f"{where}: [{section}] '{key}' must be {_type_name(typ)}, got {given[key]!r}")
-        if section not in OPEN_SECTIONS:
-            for key in given:
-                if key not in keys:
-                    raise UsageError(f"{where}: [{section}] unknown key '{key}' (known: {', '.join(keys)})")
     subject = str(data["subject"]["id"]).strip()
     if not subject or any(c in subject for c in "/\\") or subject.startswith("."):
         raise UsageError(f"{where}: [subject] id {subject!r} must be a plain name (no slashes)")

@@ -27,12 +27,15 @@ import numpy as np
 from .atomic import write_text_atomic
 from .bundle import Bundle, load_bundle
 from .errors import UsageError
+from .findings import verdict
 from .model import Finding
 
 __all__ = ["VERDICTS", "Assets", "Markup", "verdict_of", "deciding_findings", "build_report", "write_report",
            "esc", "absent", "table", "severity_badge", "flatten", "fmt"]
 
 VERDICTS = ("pass", "review", "fail")
+#: how many deciding findings the verdict lists before "and N more"
+MAX_DECIDING = 8
 _SEVERITY_ORDER = {"fail": 0, "warn": 1, "info": 2}
 #: verdict -> the sentence under the verdict word
 _VERDICT_TEXT = {
@@ -43,10 +46,7 @@ _VERDICT_TEXT = {
 
 
 # ------------------------------------------------------------------ verdict
-def verdict_of(findings: Iterable[Finding]) -> str:
-    """``"fail"`` if any finding is a fail, ``"review"`` if any is a warn, else ``"pass"``."""
-    sev = {f.severity for f in findings}
-    return "fail" if "fail" in sev else "review" if "warn" in sev else "pass"
+verdict_of = verdict  # the one rule, kept in prep.findings
 
 
 def deciding_findings(findings: Iterable[Finding]) -> list[Finding]:
@@ -199,18 +199,23 @@ class Assets:
 
 
 # ------------------------------------------------------------------ page
-def _verdict_block(findings: Sequence[Finding]) -> str:
+def _verdict_block(findings: Sequence[Finding], stored: Any = None) -> str:
     verdict = verdict_of(findings)
     counts = {s: sum(f.severity == s for f in findings) for s in ("fail", "warn", "info")}
     deciding = deciding_findings(findings)
     items = "".join(
         f'<li>{severity_badge(f.severity)} <span class="msg">{esc(f.message)}</span> '
-        f'<code>{esc(f.code)}</code></li>' for f in deciding)
+        f'<code>{esc(f.code)}</code></li>' for f in deciding[:MAX_DECIDING])
+    if len(deciding) > MAX_DECIDING:
+        items += f"<li>and {len(deciding) - MAX_DECIDING} more of the same severity (see All findings).</li>"
     decide = (f'<p class="lead">What decides it:</p><ul class="deciding">{items}</ul>' if deciding
               else "")
     count_text = (f'<p class="counts"><span id="count-fail">{counts["fail"]}</span> failed, '
                   f'<span id="count-warn">{counts["warn"]}</span> to review, '
                   f'<span id="count-info">{counts["info"]}</span> notes.</p>')
+    if stored is not None and stored != verdict:
+        count_text += (f'<p class="absent">The bundle itself records the verdict "{esc(stored)}"; this page '
+                       f'recomputes it from the findings (fail beats review beats pass).</p>')
     return (f'<section class="verdict {verdict}" id="verdict" data-verdict="{verdict}" aria-labelledby="verdict-word">'
             f'<div class="verdict-head">{_shape(verdict, 56)}'
             f'<div><p class="kicker">Verdict</p><h2 id="verdict-word">{verdict.upper()}</h2>'
@@ -258,7 +263,7 @@ def build_report(bundle: Bundle, registry: Any) -> str:
             f'<meta name="viewport" content="width=device-width, initial-scale=1">'
             f'<link rel="icon" href="data:,">'
             f'<title>{esc(subject)}: {verdict_of(findings)} (headprep report)</title>'
-            f'<style>{_CSS}</style></head><body><main>{head}{_verdict_block(findings)}{nav}'
+            f'<style>{_CSS}</style></head><body><main>{head}{_verdict_block(findings, man.get("verdict"))}{nav}'
             f'{"".join(parts)}<footer>One self-contained page: every picture is inline and nothing '
             f'is fetched from a network.</footer></main></body></html>\n')
 
@@ -338,4 +343,6 @@ dl.facts{display:grid;grid-template-columns:max-content 1fr;gap:2px 16px;margin:
 dl.facts dt{color:var(--soft)}dl.facts dd{margin:0}
 .hash-text{font:12px ui-monospace,"DejaVu Sans Mono",monospace;word-break:break-all}
 footer{color:var(--soft);font-size:13px;margin-top:24px}
+@media print{body{background:#fff}nav{display:none}.scroll{max-height:none;overflow:visible}
+.part,.verdict{break-inside:avoid-page;border-color:#999}}
 """

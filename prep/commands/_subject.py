@@ -4,6 +4,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from ..atomic import check_writable
 from ..console import Context, exit_status, format_findings
 from ..recipe import Recipe
 
@@ -14,6 +15,10 @@ def add_output_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--force", action="store_true", help="replace an existing bundle")
     parser.add_argument("--no-report", action="store_true", help="do not write the HTML report")
     parser.add_argument("--json", action="store_true", help="print one JSON document on stdout")
+
+
+def _mm(x: float | None) -> str:
+    return "n/a" if x is None else f"{x:.1f} mm"
 
 
 def human_summary(res) -> str:  # noqa: ANN001 - pipeline.RunResult
@@ -28,6 +33,7 @@ def human_summary(res) -> str:  # noqa: ANN001 - pipeline.RunResult
         f"  head model           {s['head_model']}",
         f"  fit residual (RMS)   {fit}",
         f"  condition number     {cond}",
+        f"  localisation error   {_mm(s.get('localisation_error_median_mm'))} (median point-spread peak error, minimum norm)",
         f"  findings             {counts['fail']} fail, {counts['warn']} warn, {counts['info']} info",
         f"  bundle (verified)    {res.bundle}",
     ]
@@ -43,6 +49,9 @@ def human_summary(res) -> str:  # noqa: ANN001 - pipeline.RunResult
 
 def run_one(recipe: Recipe, args: argparse.Namespace, ctx: Context, out: Path | None) -> int:
     from ..pipeline import prepare_subject  # heavy: imported when a subject is prepared
+
+    base = recipe.path.parent if recipe.path else Path.cwd()
+    check_writable(out or recipe.output.get("bundle") or base / "out" / f"{recipe.subject}-forward")
 
     with ctx.progress(STEPS, f"preparing {recipe.subject}") as advance:
         res = prepare_subject(ctx.registry, recipe, out=out, force=args.force, advance=advance,

@@ -4,14 +4,14 @@ from __future__ import annotations
 import argparse
 import json
 import shutil
-import tempfile
 from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from ..atomic import write_text_atomic
+from ..atomic import check_writable, staging_dir, write_text_atomic
+from ..checks import run_checks
 from ..console import Context, exit_status, format_findings
 from ..model import FIDUCIALS, Finding, Sensors
 
@@ -65,7 +65,8 @@ def _read(ctx: Context, args: argparse.Namespace) -> tuple[Sensors, Any, dict | 
 
     reg = ctx.registry
     sensors = read_sensors(reg, args.sensors, units=args.sensor_units)
-    findings = list(sensors.findings)
+    # the same sensor checks as `inspect` and `run` (a NaN electrode or a doubled label is a fail here too)
+    findings = list(sensors.findings) + list(run_checks(reg, "sensors", sensors=sensors).findings)
     if args.headshape:
         hs = read_sensors(reg, args.headshape, units=args.sensor_units)
         findings += hs.findings
@@ -129,8 +130,7 @@ def _write_placed(ctx: Context, placed: Sensors, path: Path) -> list[Path]:
 def _write(ctx: Context, out: Path, doc: dict[str, Any], res: Any, scalp: Any) -> list[Path]:
     from ..placement import placement_figure
 
-    out.mkdir(parents=True, exist_ok=True)
-    stage = Path(tempfile.mkdtemp(prefix=".align.", suffix=".part", dir=out))
+    stage = staging_dir(out / "align")
     try:
         staged = [stage / "alignment.json"]
         write_text_atomic(staged[0], json.dumps(doc, indent=2, allow_nan=False) + "\n")
@@ -196,6 +196,8 @@ def run(args: argparse.Namespace, ctx: Context) -> int:
     from ..placement import place_sensors
 
     options, check_options = _settings(ctx, args)
+    if args.out:
+        check_writable(Path(args.out) / "alignment.json")
     sensors, scalp, fids, findings = _read(ctx, args)
     res = place_sensors(ctx.registry, sensors, scalp, fids, method=args.method, options=options,
                         check_options=check_options)

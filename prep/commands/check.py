@@ -7,7 +7,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..atomic import atomic_dir
+from ..atomic import atomic_dir, check_writable
 from ..bundle import load_bundle
 from ..console import exit_status, format_findings
 from ..errors import ReadError, UsageError
@@ -124,6 +124,7 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
     out = Path(args.out) if args.out else origin.with_name(f"{origin.stem}-passport")
     if out.exists() and not args.force:
         raise UsageError(f"{out}: already exists; use --force to replace it")
+    check_writable(out)  # refuse before the (long) computation
     options = {"snr": args.snr} if args.snr is not None else None
     passport = run_passport(ctx.registry, lf, sensors, options=options)
     doc = {"input": str(origin), "out": str(out), **passport.to_dict()}

@@ -5,6 +5,7 @@ import argparse
 import json
 from pathlib import Path
 
+from ..atomic import check_writable
 from ..bundle import load_bundle
 from ..console import EXIT_OK
 from ..errors import UsageError
@@ -57,6 +58,7 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
         raise UsageError(f"{out}: already exists; use --force to replace it")
     if out.is_dir():
         raise UsageError(f"{out}: is a directory")
+    check_writable(out)
     opts = reg.options(exporter, _parse_options(args.option, dict(exporter.defaults)), f"--option for '{args.to}'")
     bundle = load_bundle(args.bundle)
     written = reg.call(exporter, "export", bundle, out, step=f"exporter '{exporter.name}' writing {out}", **opts)

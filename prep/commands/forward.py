@@ -6,10 +6,11 @@ from pathlib import Path
 
 import numpy as np
 
-from ..atomic import atomic_file
+from ..atomic import atomic_file, check_writable
 from ..errors import ReadError, UsageError
 from ..forward import DEFAULT_SHELLS, build_forward, outside_innermost, sphere_conductor
-from ..model import VolumeConductor
+from ..console import exit_status, format_findings
+from ..model import Sensors, VolumeConductor
 from ..readers import check_input_file, read_sensors, read_surface
 
 HELP = "compute a lead field for given sources with a chosen head model"
@@ -31,7 +32,10 @@ the published defaults of docs/sphere-model.md. Sources must lie inside the
 innermost sphere.
 --model bem: boundary elements on --inner-skull, --outer-skull and --scalp
 meshes (same frame as the electrodes), conductivities inside -> out
-(default 0.33, 0.0042, 0.33 S/m).
+(default 0.33, 0.0042, 0.33 S/m); --mesh-units states the meshes' length unit
+(else it is inferred from their size, with an input.units-suspect warning).
+Exit 0, or 1 if a reader reported a failed check; 2 when an input cannot be
+used (nothing is written).
 """
 
 #: default conductivities for three nested layers, inside -> out (brain, skull, scalp), S/m:
@@ -54,6 +58,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--scalp", metavar="MESH", help="scalp mesh (bem)")
     parser.add_argument("--outer-skull", metavar="MESH", help="outer skull mesh (bem)")
     parser.add_argument("--inner-skull", metavar="MESH", help="inner skull mesh (bem)")
+    parser.add_argument("--mesh-units", metavar="UNIT", help="length unit of the meshes (m, cm, mm; bem)")
     parser.add_argument("--json", action="store_true", help="print one JSON document on stdout")
 
 
@@ -123,7 +128,7 @@ def read_sources(path: Path) -> tuple[np.ndarray, np.ndarray | None, list[int]]:
 
 def _conductor(args: argparse.Namespace, ctx, positions: np.ndarray, frame: str) -> VolumeConductor:  # noqa: ANN001
     if args.model == "spheres":
-        for opt in ("scalp", "outer_skull", "inner_skull"):
+        for opt in ("scalp", "outer_skull", "inner_skull", "mesh_units"):
             if getattr(args, opt):
                 raise UsageError(f"--{opt.replace('_', '-')} belongs to --model bem")
         return sphere_conductor(positions, centre=_floats("--centre", args.centre, 3),
@@ -136,7 +141,7 @@ def _conductor(args: argparse.Namespace, ctx, positions: np.ndarray, frame: str)
     if missing:
         raise UsageError(f"--model bem needs {', '.join(missing)}")
     sig = _floats("--conductivities", args.conductivities, 3) or list(LAYER_CONDUCTIVITIES)
-    layers = tuple(read_surface(ctx.registry, getattr(args, o), o, frame=frame)
+    layers = tuple(read_surface(ctx.registry, getattr(args, o), o, frame=frame, units=args.mesh_units)
                    for o in ("inner_skull", "outer_skull", "scalp"))
     try:
         return VolumeConductor(kind="layers", conductivities=sig, layers=layers, frame=frame)
@@ -144,15 +149,29 @@ def _conductor(args: argparse.Namespace, ctx, positions: np.ndarray, frame: str)
         raise UsageError(f"--conductivities: {exc}") from exc
 
 
+def _refuse_nonfinite(sensors: Sensors) -> None:
+    """A lead field needs every EEG electrode's position: a missing one is unusable input (exit 2)."""
+    bad = np.flatnonzero(sensors.eeg_mask & ~np.all(np.isfinite(sensors.positions), axis=1))
+    if bad.size:
+        i = int(bad[0])
+        lines = sensors.provenance.extra.get("channel_lines")
+        line = lines[i] if lines is not None and len(lines) == len(sensors) else None
+        raise ReadError(sensors.provenance.file or "sensors", line,
+                        f"electrode {sensors.labels[i]} has a missing or non-finite coordinate "
+                        f"({bad.size} electrode(s) in all); a lead field needs every electrode's position")
+
+
 def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
     src_path = check_input_file(args.sources, "sources")
     out = Path(args.out)
     if out.is_dir():
         raise UsageError(f"{out}: is a directory; give a file name for the lead field")
+    check_writable(out)  # refuse before a (possibly long) computation
     sensors = read_sensors(ctx.registry, args.sensors, reader=args.reader, units=args.units)
     eeg = sensors.select(sensors.eeg_mask)
     if len(eeg) == 0:
         raise UsageError(f"{args.sensors}: no EEG channels")
+    _refuse_nonfinite(sensors)
     positions, normals, lines = read_sources(src_path)
     conductor = _conductor(args, ctx, eeg.positions, eeg.frame)
     if conductor.kind == "layers":  # a boundary-element model would give zero columns: refuse instead
@@ -163,12 +182,15 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
             i = int(found[0].values["rows"][0])
             raise ReadError(src_path, lines[i], f"source {i} lies outside the inner skull mesh "
                                                 f"({len(found[0].values['rows'])} such sources)")
+    # what the readers noticed (units assumed from the size...) is shown, as in the other commands
+    findings = [*sensors.findings, *(f for layer in conductor.layers or () for f in layer.findings)]
     outside = outside_innermost(conductor, positions)
     if outside.any():
         i = int(np.flatnonzero(outside)[0])
         dist = float(np.linalg.norm(positions[i] - conductor.centre))
-        raise ReadError(src_path, lines[i], f"source at {dist:.4g} m from the sphere centre is not inside the "
-                                            f"innermost sphere (radius {conductor.radii[0]:.4g} m)")
+        raise ReadError(src_path, lines[i], f"source at {dist * 1e3:.1f} mm from the sphere centre is not inside "
+                                            f"the innermost sphere (radius {conductor.radii[0] * 1e3:.1f} mm; "
+                                            "source files are in metres)")
     fm = build_forward(ctx.registry, conductor, eeg.labels, eeg.positions, reference=args.reference)
     step = 4096
     parts = []
@@ -185,7 +207,8 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
     doc = {"output": str(out), "shape": list(matrix.shape), "orientation": orientation,
            "reference": args.reference, "units": "V/(A*m)", "model": args.model, "solver": fm.solver,
            "conductor": conductor.describe(), "sensor_labels": list(eeg.labels),
-           "n_sensors": matrix.shape[0], "n_sources": matrix.shape[1], "findings": []}
+           "n_sensors": matrix.shape[0], "n_sources": matrix.shape[1],
+           "findings": [f.to_dict() for f in findings]}
 
     def human() -> str:
         lines_out = [f"wrote {out}: {matrix.shape[0]} EEG channels x {matrix.shape[1]} sources"
@@ -193,13 +216,15 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
                      f"{'average' if args.reference == 'average' else args.reference} reference"]
         d = conductor.describe()
         if conductor.kind == "spheres":
-            lines_out.append("  spheres: centre " + ", ".join(f"{v:.4f}" for v in d["centre_m"]) + " m; radii "
-                             + ", ".join(f"{v:.4f}" for v in d["radii_m"]) + " m; conductivities "
+            lines_out.append("  spheres: centre " + ", ".join(f"{v * 1e3:.1f}" for v in d["centre_m"]) + " mm; radii "
+                             + ", ".join(f"{v * 1e3:.1f}" for v in d["radii_m"]) + " mm; conductivities "
                              + ", ".join(f"{v:g}" for v in d["conductivities_S_per_m"]) + " S/m")
         else:
             lines_out.append("  layers: conductivities "
                              + ", ".join(f"{v:g}" for v in d["conductivities_S_per_m"]) + " S/m")
+        if findings:
+            lines_out.append(format_findings(findings))
         return "\n".join(lines_out)
 
     ctx.emit(doc, human)
-    return 0
+    return exit_status(findings)

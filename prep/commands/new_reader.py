@@ -12,6 +12,7 @@ from __future__ import annotations
 import argparse
 import re
 import shutil
+from collections import Counter
 from pathlib import Path
 
 import numpy as np
@@ -128,31 +129,59 @@ def _is_number(text: str) -> bool:
     return True
 
 
+def _first_triple(cells: list[str]) -> int | None:
+    """Index of the first run of three numeric cells (x, y, z), or None."""
+    return next((j for j in range(len(cells) - 2) if all(_is_number(c) for c in cells[j:j + 3])), None)
+
+
+def _split(text: str, delim: str | None) -> list[str]:
+    return [c.strip() for c in (text.split(delim) if delim else text.split())]
+
+
+_UNIT_LINE = re.compile(r"\bunits?\s*[=:]\s*(mm|cm|m)\b", re.IGNORECASE)
+_LABEL_NAMES = ("label", "name", "channel", "electrode", "id")
+
+
 def guess_layout(sample: Path) -> dict[str, object]:
-    """Delimiter, header lines, label/x/y/z columns and unit of a sample file."""
-    lines = [t for t in sample.read_text(encoding="utf-8", errors="replace").splitlines()[:5000]
-             if t.strip() and not t.lstrip().startswith("#")]
+    """Delimiter, header lines, label/x/y/z columns and unit of a sample file.
+
+    The data rows are the lines holding three numbers in a row; the lines before
+    the first of them (a magic line, a unit line, a column header) are header
+    lines. A header naming ``x``, ``y``, ``z`` (and a label column) wins over the
+    guess; a ``unit=cm`` style line before the data gives the unit, else it is
+    judged from the size of the head.
+    """
+    text = sample.read_text(encoding="utf-8", errors="replace").splitlines()[:5000]
+    lines = [t for t in text if t.strip() and not t.lstrip().startswith("#")]
     if not lines:
         raise UsageError(f"{sample}: no data lines in the sample")
-    delim = next((d for d in ("\t", ",", ";") if d in lines[0]), None)
-    split = [[c.strip() for c in (t.split(delim) if delim else t.split())] for t in lines]
-    header = 0 if len(split[0]) >= 4 and all(_is_number(c) for c in split[0][1:4]) else 1
-    columns = [0, 1, 2, 3]
+    # the delimiter that makes the most rows hold x, y, z (whitespace last: it splits almost anything)
+    delim = max(("\t", ",", ";", None),
+                key=lambda d: sum(_first_triple(_split(t, d)) is not None for t in lines) if d is None or
+                any(d in t for t in lines) else -1)
+    split = [_split(t, delim) for t in lines]
+    starts = [_first_triple(r) for r in split]
+    first = next((k for k, j in enumerate(starts) if j is not None), None)
+    if first is None:
+        raise UsageError(f"{sample}: cannot find rows of three coordinates (x y z) in the sample")
+    header = first
+    j = Counter(j for j in starts if j is not None).most_common(1)[0][0]
+    columns = [j - 1 if j > 0 else (j + 3 if all(len(r) > j + 3 for r in split[first:] if r) else 0), j, j + 1, j + 2]
     if header:
-        names = [c.lower() for c in split[0]]
+        names = [c.lower() for c in split[first - 1]]
         for k, axis in enumerate("xyz", start=1):
             hit = [i for i, n in enumerate(names) if n == axis or n.startswith((axis + "_", axis + " ", axis + "["))]
             if hit:
                 columns[k] = hit[0]
-        rest = [i for i in range(len(names)) if i not in columns[1:]]
-        columns[0] = rest[0] if rest else 0
-    rows = [r for r in split[header:] if len(r) > max(columns)]
-    try:
-        xyz = np.array([[float(r[i]) for i in columns[1:]] for r in rows], dtype=float).reshape(-1, 3)
-    except ValueError as exc:
-        raise UsageError(f"{sample}: cannot read the coordinates of the sample ({exc})") from None
+        named = [i for i, n in enumerate(names) if n in _LABEL_NAMES and i not in columns[1:]]
+        if named:
+            columns[0] = named[0]
+    rows = [r for r in split[first:] if len(r) > max(columns) and all(_is_number(r[i]) for i in columns[1:])]
+    xyz = np.array([[float(r[i]) for i in columns[1:]] for r in rows], dtype=float).reshape(-1, 3)
     fids = {fiducial_name(r[columns[0]]): xyz[k] for k, r in enumerate(rows) if fiducial_name(r[columns[0]])}
-    unit, _, _ = judge_unit(xyz, fids)
+    declared = next((m.group(1).lower() for t in text[:max(1, text.index(lines[first]))]
+                     if (m := _UNIT_LINE.search(t))), None)
+    unit = declared or judge_unit(xyz, fids)[0]
     return {"delim": delim, "header": header, "columns": tuple(columns), "unit": unit}
 
 

@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from ..atomic import write_bytes_atomic
+from ..atomic import check_writable, write_bytes_atomic
 from ..checks import run_checks
 from ..console import exit_status, format_findings
 from ..errors import UsageError
@@ -131,6 +131,7 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
     out = Path(args.out)
     if out.suffix.lower() != ".npz":
         raise UsageError(f"--out {out}: the patches file must end in .npz")
+    check_writable(out)
     if args.count is not None and args.count < 1:
         raise UsageError(f"--count {args.count}: must be at least 1")
     if args.spacing is not None and args.spacing <= 0:
@@ -195,7 +196,8 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
            "findings": [f.to_dict() for f in findings]}
 
     def human() -> str:
-        lines = [f"{len(patches)} patches ({', '.join(f'hemisphere {k}: {v}' for k, v in per_hemi.items())}), "
+        side = {"0": "left", "1": "right", "-1": "hemisphere unknown"}  # docs/bundle-format.md: 0 left, 1 right
+        lines = [f"{len(patches)} patches ({', '.join(f'{side.get(k, k)} {v}' for k, v in per_hemi.items())}), "
                  f"total area {doc['total_area_m2'] * 1e4:.1f} cm^2, mean {doc['mean_area_mm2']:.1f} mm^2, "
                  f"median normal spread {doc['median_spread_deg']:.1f} deg",
                  f"wrote {out}" + (f" and {picture}" if picture else "")]

@@ -5,6 +5,7 @@ import argparse
 
 import numpy as np
 
+from ..atomic import check_writable
 from ..console import exit_status, format_findings
 from ..errors import UsageError
 from ..readers import read_sensors, read_surface
@@ -21,7 +22,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--scalp", required=True, metavar="MESH", help="scalp mesh (PLY, STL, OBJ, OFF, GIfTI...)")
     parser.add_argument("--fiducials", required=True, metavar="FILE",
                         help="electrode-style file holding nasion, LPA, RPA (and optionally inion)")
-    parser.add_argument("--out", required=True, metavar="FILE", help="output, e.g. sub-01_electrodes.tsv")
+    parser.add_argument("--out", required=True, metavar="FILE",
+                        help="output ending in electrodes.tsv, e.g. sub-01_electrodes.tsv "
+                        "(its coordsystem.json is written beside it)")
     parser.add_argument("--template", default=None, metavar="NAME",
                         help="montage template plugin (default: the one offering the system)")
     parser.add_argument("--units", metavar="UNIT", help="length unit of the fiducial file, overriding it")
@@ -49,8 +52,11 @@ def run(args: argparse.Namespace, ctx) -> int:  # noqa: ANN001
                          f"(it offers {', '.join(template.systems)})")
     writer = next((w for w in reg.descriptors("sensor_writer")
                    if any(args.out.lower().endswith(s.lower()) for s in w.suffixes)), None)
-    if writer is None:
-        writer = reg.get("sensor_writer", "bids")
+    if writer is None:  # another name would be written, but not read back with its sidecar (units, frame)
+        endings = sorted({s for w in reg.descriptors("sensor_writer") for s in w.suffixes})
+        raise UsageError(f"--out {args.out}: the name must end in {' or '.join(map(repr, endings))}, so that "
+                         "the file is read back with its sidecar (e.g. sub-01_electrodes.tsv)")
+    check_writable(args.out)
     fids = read_sensors(reg, args.fiducials, units=args.units)
     missing = [k for k in ("nasion", "lpa", "rpa") if k not in fids.fiducials]
     if missing:

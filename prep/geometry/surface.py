@@ -170,7 +170,22 @@ class SurfaceQuery:
         return cp[pick], d2[pick], flat[pick], feat[pick]
 
     def query(self, points: ArrayLike, *, exact: bool = True) -> tuple[FloatArray, FloatArray, IntArray]:
-        """Closest surface points, signed distances and face indices.
+        """Closest surface points, signed distances and face indices; a non-finite point gets NaN and face -1.
+
+        See :meth:`_query` for the parameters and results.
+        """
+        p = np.ascontiguousarray(points, dtype=np.float64).reshape(-1, 3)
+        ok = np.isfinite(p).all(axis=1)
+        if ok.all():
+            return self._query(p, exact=exact)
+        out, dist = np.full((len(p), 3), np.nan), np.full(len(p), np.nan)
+        face = np.full(len(p), -1, dtype=np.int64)
+        if ok.any():
+            out[ok], dist[ok], face[ok] = self._query(p[ok], exact=exact)
+        return out, dist, face
+
+    def _query(self, points: ArrayLike, *, exact: bool = True) -> tuple[FloatArray, FloatArray, IntArray]:
+        """Closest surface points, signed distances and face indices of finite points.
 
         Parameters
         ----------

@@ -77,3 +77,15 @@ def test_too_few_points_exits_2_and_writes_nothing(tmp_path: Path, capsys: pytes
     assert main(_argv(files, "--out", str(out), "--set", "no_such_option=1")) == 2
     assert "unknown check option 'no_such_option'" in capsys.readouterr().err
     assert not out.exists()
+
+
+def test_align_reports_a_nonfinite_electrode_as_a_fail(tmp_path: Path, capsys: pytest.CaptureFixture) -> None:
+    """The sensor checks run here as in `inspect` and `run`: a NaN electrode is input.nonfinite, exit 1."""
+    s = subject("ellipsoid", 3)
+    pos = s.sensors.positions * 1000
+    pos[2] = np.nan
+    files = _write_subject(tmp_path, replace(s.sensors, positions=pos, headshape=s.sensors.headshape * 1000,
+                                             fiducials={k: v * 1000 for k, v in s.sensors.fiducials.items()}), s)
+    assert main(_argv(files, "--json", "--set", "n_boot=20")) == 1
+    doc = json.loads(capsys.readouterr().out)
+    assert [f["subjects"] for f in doc["findings"] if f["code"] == "input.nonfinite"] == [[s.sensors.labels[2]]]

@@ -98,6 +98,24 @@ def test_closest_points_agree_with_trimesh(ellipsoid: trimesh.Trimesh, seed: int
     assert np.all((face >= 0) & (face < len(ellipsoid.faces)))
 
 
+@settings(max_examples=8, deadline=None)
+@given(seed=seeds, bad=st.sets(st.integers(0, 19), min_size=1, max_size=20))
+def test_nonfinite_points_get_nan_and_leave_the_others_unchanged(ellipsoid: trimesh.Trimesh, seed: int,
+                                                                 bad: set[int]) -> None:
+    """A NaN electrode (a data problem reported as input.nonfinite) must not crash the query (numpy-like NaN out)."""
+    rng = np.random.default_rng(seed)
+    p = rng.normal(size=(20, 3)) * 0.05
+    ref = closest_points(ellipsoid.vertices, ellipsoid.faces, p)
+    q = p.copy()
+    idx = sorted(bad)
+    q[idx, rng.integers(0, 3)] = rng.choice([np.nan, np.inf, -np.inf])
+    on, d, face = closest_points(ellipsoid.vertices, ellipsoid.faces, q)
+    keep = np.setdiff1d(np.arange(20), idx)
+    assert np.isnan(on[idx]).all() and np.isnan(d[idx]).all() and (face[idx] == -1).all()
+    assert np.array_equal(on[keep], ref[0][keep]) and np.array_equal(d[keep], ref[1][keep])
+    assert np.array_equal(face[keep], ref[2][keep])
+
+
 def test_sign_at_vertices_and_edges(ellipsoid: trimesh.Trimesh) -> None:
     v = np.asarray(ellipsoid.vertices)
     edges = np.asarray(ellipsoid.edges_unique)

@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import numpy as np
@@ -87,6 +88,16 @@ def test_fixed_orientation_npy_explicit_sphere_and_reference(cli, sensors, tmp_p
     assert doc["conductor"]["radii_m"] == [0.08, 0.085, 0.092]
 
 
+def test_human_summary_gives_sphere_geometry_in_mm(cli, sensors, tmp_path, capsys):
+    """People read millimetres (the kit's convention for human output); the JSON keeps metres."""
+    src = _tsv(tmp_path / "src.tsv", "x y z", ["0 0 0.03"])
+    code = cli(["forward", "--model", "spheres", "--sensors", str(sensors), "--sources", str(src),
+                "--out", str(tmp_path / "lf.npy"), "--centre", "0,0.005,0.03", "--radii", "0.08,0.085,0.092"])
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "centre 0.0, 5.0, 30.0 mm; radii 80.0, 85.0, 92.0 mm" in out
+
+
 def test_bad_source_row_names_file_and_line_and_writes_nothing(cli, sensors, tmp_path, capsys):
     src = _tsv(tmp_path / "src.tsv", "x y z", ["0 0 0.03", "0.01 oops 0.05"])
     out = tmp_path / "lf.npy"
@@ -104,6 +115,7 @@ def test_source_outside_innermost_sphere_is_exit_2(cli, sensors, tmp_path, capsy
                 "--out", str(out)])
     err = capsys.readouterr().err
     assert code == 2 and f"{src}:4:" in err and "innermost sphere" in err
+    assert re.search(r"at \d+\.\d mm from the sphere centre .* \(radius \d+\.\d mm", err)  # mm for people
     assert not out.exists()
 
 
@@ -140,3 +152,32 @@ def test_bem_needs_its_meshes(cli, sensors, tmp_path, capsys):
     code = cli(["forward", "--model", "bem", "--sensors", str(sensors), "--sources", str(src),
                 "--out", str(tmp_path / "lf.npy")])
     assert code == 2 and "--model bem needs --inner-skull, --outer-skull, --scalp" in capsys.readouterr().err
+
+
+def test_nan_electrode_is_exit_2_naming_file_and_line(cli, tmp_path, capsys):
+    """A NaN electrode used to surface as 'cannot fit a sphere' without a file; now file:line and label."""
+    path = tmp_path / "cap.csv"
+    rows = [f"E{i},{0.09 * np.cos(a):.4f},{0.09 * np.sin(a):.4f},{0.03 + 0.01 * (i % 4):.4f}"
+            for i, a in enumerate(np.linspace(0, 2 * np.pi, 16, endpoint=False))]
+    rows[5] = "E5,nan,0.01,0.05"
+    path.write_text("# units: m\nlabel,x,y,z\n" + "\n".join(rows) + "\n")
+    src = _tsv(tmp_path / "src.tsv", "x y z", ["0 0 0.03"])
+    code = cli(["forward", "--model", "spheres", "--sensors", str(path), "--sources", str(src),
+                "--out", str(tmp_path / "lf.npy")])
+    err = capsys.readouterr().err
+    assert code == 2 and f"{path}:8: electrode E5" in err
+    assert not (tmp_path / "lf.npy").exists()
+
+
+def test_reader_findings_are_shown_and_mesh_units_belong_to_bem(cli, tmp_path, capsys):
+    path = tmp_path / "cap.csv"  # no unit stated: the reader assumes metres from the size, with a warning
+    rows = [f"E{i},{0.09 * np.cos(a):.4f},{0.09 * np.sin(a):.4f},{0.03 + 0.01 * (i % 4):.4f}"
+            for i, a in enumerate(np.linspace(0, 2 * np.pi, 16, endpoint=False))]
+    path.write_text("label,x,y,z\n" + "\n".join(rows) + "\n")
+    src = _tsv(tmp_path / "src.tsv", "x y z", ["0 0 0.03"])
+    argv = ["forward", "--model", "spheres", "--sensors", str(path), "--sources", str(src),
+            "--out", str(tmp_path / "lf.npy")]
+    assert cli([*argv, "--json"]) == 0
+    assert "input.units-suspect" in {f["code"] for f in json.loads(capsys.readouterr().out)["findings"]}
+    assert cli([*argv, "--mesh-units", "mm"]) == 2
+    assert "--mesh-units belongs to --model bem" in capsys.readouterr().err

@@ -45,6 +45,10 @@ def test_good_recipe_resolves_paths_relative_to_itself(tmp_path: Path) -> None:
     (GOOD + "[forward]\norientation = 'sideways'\n", "orientation"),
     (GOOD.replace('id = "s01"', 'id = "../x"'), "plain name"),
     ("[subject\nid = 1", "not valid TOML.*line 1"),
+    # a misspelt required key is named as such (with the likely intended key), not reported as missing
+    (GOOD.replace('scalp = "scalp.ply"', 'scallp = "scalp.ply"'),
+     r"\[inputs\] unknown key 'scallp' \(did you mean 'scalp'\?"),
+    (GOOD.replace("[patches]", "[patchs]"), r"unknown section \[patchs\] \(did you mean 'patches'\?"),
 ])
 def test_bad_recipes_name_file_and_key(tmp_path: Path, text: str, message: str) -> None:
     p = _write(tmp_path, text)

@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import numpy as np
@@ -59,6 +60,13 @@ def test_keep_excluded_fails(head: Path, tmp_path: Path, capsys) -> None:
     doc = json.loads(stdout)
     assert rc == 1 and doc["n_patches"] >= 190
     assert "patches.outside" in {f["code"] for f in doc["findings"] if f["severity"] == "fail"}
+
+
+def test_human_summary_names_hemispheres_left_and_right(head: Path, tmp_path: Path, capsys) -> None:
+    rc, stdout, _ = _main(capsys, "patches", str(head / "lh.ply"), str(head / "rh.ply"), "--count", "200",
+                          "--mesh-units", "mm", "--no-picture", "--out", str(tmp_path / "p.npz"))
+    assert rc == 0
+    assert re.match(r"\d+ patches \(left \d+, right \d+\), total area", stdout)  # not 'hemisphere 0/1'
 
 
 def test_units_suspect_reported_without_mesh_units(head: Path, tmp_path: Path, capsys) -> None:

@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 
 from conftest import LIFTED, SPARSE, SUNK, make_synthetic_bundle
+from prep import PluginError, ReportSection, hookimpl, make_registry
 from prep.bundle import load_bundle
 from prep.cli import main
 from prep.model import Finding
@@ -91,6 +92,45 @@ def test_verdict_rules() -> None:
     assert [f.severity for f in deciding_findings([_f("warn"), _f("fail"), _f("info")])] == ["fail"]
     assert [f.severity for f in deciding_findings([_f("warn"), _f("info")])] == ["warn"]
     assert deciding_findings([_f("info")]) == []
+
+
+def test_verdict_lists_at_most_a_few_deciding_findings(sparse_bundle: Path, registry) -> None:  # noqa: ANN001
+    from prep.report import MAX_DECIDING
+
+    b = load_bundle(sparse_bundle)
+    many = [Finding(code="placement.off-scalp", severity="fail", message=f"electrode E{i:02d} is off")
+            for i in range(MAX_DECIDING + 3)]
+    b.manifest["findings"] = [f.to_dict() for f in many]
+    page = Page(build_report(b, registry))
+    assert "and 3 more of the same severity" in page.by_id["verdict"]
+    assert int(page.by_id["count-fail"]) == MAX_DECIDING + 3
+
+
+class _ThirdParty:
+    """A throwaway plugin with two sections, one of which crashes."""
+
+    @staticmethod
+    @hookimpl
+    def headprep_register_report_sections() -> list[ReportSection]:
+        return [ReportSection(name="zz_first", title="Mine", order=-5, render=lambda b, a: "<p>mine</p>"),
+                ReportSection(name="aa_empty", order=50, render=lambda b, a: ""),
+                ReportSection(name="boom", order=60, render=lambda b, a: 1 / 0)]
+
+
+def test_sections_of_any_plugin_sort_by_order_and_crashes_name_the_plugin(sparse_bundle: Path) -> None:
+    b = load_bundle(sparse_bundle)
+    with pytest.raises(PluginError, match="boom"):
+        build_report(b, make_registry(entry_points=False, plugins=[_ThirdParty()]))
+
+    class Quiet:
+        @staticmethod
+        @hookimpl
+        def headprep_register_report_sections() -> list[ReportSection]:
+            return _ThirdParty.headprep_register_report_sections()[:2]
+
+    page = Page(build_report(b, make_registry(entry_points=False, plugins=[Quiet()])))
+    # the verdict stays first even before a section of negative order; empty sections are left out
+    assert page.section_ids == ["verdict", "s-zz_first"]
 
 
 def test_assets_refuse_pictures_without_alt_text() -> None:
@@ -190,7 +230,7 @@ def test_command_writes_page_and_exits_with_verdict(sparse_bundle: Path, tmp_pat
 
 
 def test_pass_verdict_exits_zero(tmp_path: Path, capsys) -> None:  # noqa: ANN001
-    bundle = make_synthetic_bundle(tmp_path / "clean", findings=[], **SPARSE)
+    bundle = make_synthetic_bundle(tmp_path / "clean.zip", findings=[], **SPARSE)  # a zipped bundle
     out = tmp_path / "clean.html"
     assert main(["report", str(bundle), "--out", str(out)]) == 0
     assert "verdict PASS" in capsys.readouterr().out

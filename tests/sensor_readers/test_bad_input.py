@@ -4,6 +4,7 @@ from __future__ import annotations
 import pytest
 
 from prep import ReadError, make_registry
+from prep.errors import UsageError
 from prep.electrodes import Limits, text_lines
 from prep.readers import read_sensors
 from prep_plugins.check_sensors import check_sensors
@@ -58,7 +59,14 @@ def test_duplicate_labels(reg, write):
     s = read_sensors(reg, write("d.csv", "label,x,y,z\nFp1,1,80,20\nfp1,2,80,20\nCz,0,0,95\n"), units="mm")
     assert s.labels.count("Fp1") == 2
     f = _codes(reg, s)["input.duplicate-label"]
-    assert f.subjects == ("Fp1",) and f.severity == "fail" and "rows 1, 2" in f.message
+    # the file's own line numbers (header is line 1), so the user can go straight to them
+    assert f.subjects == ("Fp1",) and f.severity == "fail" and "lines 2, 3" in f.message
+
+
+def test_nonfinite_coordinates_name_their_line(reg, write):
+    s = read_sensors(reg, write("n.csv", "label,x,y,z\nFp1,1,80,20\nCz,0,nan,95\n"), units="mm")
+    f = _codes(reg, s)["input.nonfinite"]
+    assert f.subjects == ("Cz",) and "(line 3)" in f.message
 
 
 def test_missing_fiducials(reg, write):
@@ -125,3 +133,14 @@ def test_header_without_coordinates(reg, write):
     with pytest.raises(ReadError, match="missing x, y, z") as info:
         read_sensors(reg, write("x.csv", "label,a,b,c\nCz,0,0,1\n"))
     assert info.value.line == 1
+
+
+def test_too_few_points_to_judge_the_unit_says_so(reg, write):
+    s = read_sensors(reg, write("one.csv", "label,x,y,z\nNAS,0,9,0\n"))
+    f = next(f for f in s.findings if f.code == "input.units-suspect")
+    assert "too few points to judge one; assumed metres" in f.message and "nothing measurable" not in f.message
+
+
+def test_a_folder_given_as_electrode_file(reg, tmp_path):
+    with pytest.raises(UsageError, match="is a folder, not a"):
+        read_sensors(reg, tmp_path)

@@ -28,3 +28,18 @@ def test_quill_example_passes_the_conformance_suite(tmp_path):
 def _bids():
     from prep_plugins import sensor_bids
     return sensor_bids
+
+
+def test_quill_example_scaffolds_as_the_doc_says(tmp_path, capsys):
+    """Step 1 of the walk-through (`headprep new-reader quill --sample session.qpt`) succeeds on the doc's
+    sample: the magic and unit lines are header lines, label and x/y/z are columns 1-4, the unit is cm."""
+    import json
+
+    from prep.cli import main
+
+    text = DOC.read_text(encoding="utf-8")
+    sample = tmp_path / "session.qpt"
+    sample.write_text(re.findall(r"## The format\n\n```\n(.*?)```", text, re.S)[0], encoding="utf-8")
+    assert main(["new-reader", "quill", "--sample", str(sample), "--out", str(tmp_path), "--json"]) == 0
+    layout = json.loads(capsys.readouterr().out)["layout"]
+    assert layout == {"delim": None, "header": 2, "columns": [1, 2, 3, 4], "unit": "cm"}

@@ -62,3 +62,12 @@ def test_bare_electrodes_tsv_reads_back_with_its_sidecar(tmp_path, capsys):
     doc = json.loads(capsys.readouterr().out)
     assert doc["reader"] == "bids" and doc["units"] == {"unit": "m", "source": "declared"}
     assert doc["counts"]["eeg"] == 89 and doc["counts"]["fiducials"] == 4
+
+
+def test_an_out_name_no_writer_makes_is_refused_before_placing(tmp_path, capsys):
+    """'tpl.tsv' would be written as BIDS but read back without its sidecar (units assumed, with a warning)."""
+    scalp, fids = _inputs(tmp_path)
+    assert main(["template", "--scalp", str(scalp), "--fiducials", str(fids), "--out", str(tmp_path / "tpl.tsv")]) == 2
+    err = capsys.readouterr().err
+    assert "_electrodes.tsv" in err and len(err.strip().splitlines()) == 1
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["fiducials.csv", "scalp.ply"]
