@@ -47,6 +47,9 @@ def lead_block(dirs, src, normals, fixed, idx, out, weights_c, weights_d, c_inf,
     tail = np.empty(kmax + 2)
     ncol = 1 if fixed else 3
     col = np.empty((ne, ncol))
+    root = np.empty(kmax + 1)
+    for n in range(1, kmax + 1):
+        root[n] = math.sqrt(1.0 + 1.0 / n)
     for jj in range(idx.shape[0]):
         j = idx[jj]
         x, y, z = src[j, 0], src[j, 1], src[j, 2]
@@ -67,16 +70,16 @@ def lead_block(dirs, src, normals, fixed, idx, out, weights_c, weights_d, c_inf,
             for i in range(ne):
                 ft = f * t[i]
                 d = math.sqrt(1.0 - 2.0 * ft + f * f)
-                inv_d = 1.0 / d
+                e = 1.0 - ft + d
+                inv = 1.0 / (d * e)                    # one division for 1/d and 1/(d e)
+                inv_d = e * inv
                 g = 2.0 * c_inf * inv_d * inv_d * inv_d
-                a2 = ca * (d + 1.0) * inv_d / (1.0 - ft + d)
+                a2 = ca * (d + 1.0) * inv
                 b1 = g * (t[i] - f) + (inv_d - 1.0) * (ca / f)
                 b2 = g + a2
                 s1[i] = b1
                 s2[i] = b2
-                v = abs(b1) + abs(b2) * sg[i]
-                if v > scale:
-                    scale = v
+                scale = max(scale, abs(b1) + abs(b2) * sg[i])
         else:
             w = weights_c
             scale = 3.0 * abs(weights_c[1])
@@ -90,7 +93,7 @@ def lead_block(dirs, src, normals, fixed, idx, out, weights_c, weights_d, c_inf,
             fp *= f
         tail[kmax + 1] = 0.0
         for n in range(kmax, 0, -1):
-            tail[n] = tail[n + 1] + abs(coef[n]) * math.sqrt(1.0 + 1.0 / n)
+            tail[n] = tail[n + 1] + abs(coef[n]) * root[n]
         budget = tol * scale
         n_deg = kmax
         for n in range(1, kmax + 1):
@@ -106,21 +109,45 @@ def lead_block(dirs, src, normals, fixed, idx, out, weights_c, weights_d, c_inf,
             db[i] = 1.0          # P'_n
             s1[i] += a1 * t[i]
             s2[i] += a1
-        for n in range(1, n_deg):
+        n = 1
+        while n < n_deg:
+            # two degrees per pass, ping-pong between (pa, da) and (pb, db): no copies
             an = coef[n + 1]
             bn = an / (n + 1)
             p_hi = (2.0 * n + 1.0) / (n + 1.0)
             p_lo = n / (n + 1.0)
             c2 = 2.0 * n + 1.0
-            for i in range(ne):
-                pn = p_hi * t[i] * pb[i] - p_lo * pa[i]
-                dn = da[i] + c2 * pb[i]
-                pa[i] = pb[i]
-                pb[i] = pn
-                da[i] = db[i]
-                db[i] = dn
-                s1[i] += an * pn
-                s2[i] += bn * dn
+            if n + 1 < n_deg:
+                am = coef[n + 2]
+                bm = am / (n + 2)
+                q_hi = (2.0 * n + 3.0) / (n + 2.0)
+                q_lo = (n + 1.0) / (n + 2.0)
+                c3 = 2.0 * n + 3.0
+                for i in range(ne):
+                    ti = t[i]
+                    p1 = pb[i]
+                    p2 = p_hi * ti * p1 - p_lo * pa[i]
+                    d2 = da[i] + c2 * p1
+                    p3 = q_hi * ti * p2 - q_lo * p1
+                    d3 = db[i] + c3 * p2
+                    pa[i] = p2
+                    pb[i] = p3
+                    da[i] = d2
+                    db[i] = d3
+                    s1[i] += an * p2 + am * p3
+                    s2[i] += bn * d2 + bm * d3
+                n += 2
+            else:
+                for i in range(ne):
+                    pn = p_hi * t[i] * pb[i] - p_lo * pa[i]
+                    dn = da[i] + c2 * pb[i]
+                    pa[i] = pb[i]
+                    pb[i] = pn
+                    da[i] = db[i]
+                    db[i] = dn
+                    s1[i] += an * pn
+                    s2[i] += bn * dn
+                n += 1
         # potentials of the block's columns, scaled
         if fixed:
             nx, ny, nz = normals[j, 0], normals[j, 1], normals[j, 2]
