@@ -12,7 +12,7 @@ potential (up to the common factor) is at most the norm of
 ``|a_n| sqrt(P_n^2 + sin^2 P_n'^2 / n^2) <= |a_n| sqrt(1 + 1/n)``, because
 ``P_n^2 + (1 - t^2) P_n'^2 / (n (n + 1)) <= 1`` on [-1, 1] (its derivative is
 ``2 t P_n'^2 / (n (n+1))``, so it peaks at ``t = +-1``, where it is 1;
-Szego 1939, section 7.3). The series stops at the first ``N`` with
+a Sonine-type argument, Szego 1939, chapter 7). The series stops at the first ``N`` with
 ``sum_{n>N} |a_n| sqrt(1 + 1/n) <= tol * scale``.
 """
 from __future__ import annotations
