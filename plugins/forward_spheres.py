@@ -139,6 +139,8 @@ def _evaluate_compiled(kernel, dirs: np.ndarray, src: np.ndarray, nrm: np.ndarra
                        out: np.ndarray, weights: tuple, radius: float, tol: float, gain: float,
                        ref_row: int | None, per_chunk: int, workers: int) -> np.ndarray:
     """Fill ``out`` with the compiled kernel, contiguous source blocks on a thread pool (the kernel drops the GIL)."""
+    if len(dirs) == 0:
+        return out
     c, delta, c_inf, alpha = weights
     flat = out.reshape(len(dirs), -1)
     fixed = nrm is not None
