@@ -29,7 +29,9 @@ DEFAULTS: dict[str, Any] = {
     "tolerance": 1e-7,       # relative to the largest |V| of a source over the electrodes
     "workers": 0,            # threads; 0 = up to 4, bounded by the CPU count
     "chunk_elements": 65536,  # electrodes x sources per block of work (bounds memory)
+    "backend": "auto",       # "numba" (compiled kernel), "numpy", or "auto" (numba when importable)
 }
+BACKENDS = ("auto", "numba", "numpy")
 
 
 def _project(conductor: VolumeConductor, positions: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -57,8 +59,32 @@ def _workers(requested: int) -> int:
     return max(1, min(4, os.cpu_count() or 1))
 
 
+def _run_blocks(one, blocks: list[np.ndarray], workers: int) -> None:  # noqa: ANN001
+    """Call ``one(idx)`` for every block, on a thread pool when there are several workers and blocks."""
+    if workers == 1 or len(blocks) == 1:
+        for idx in blocks:
+            one(idx)
+    else:
+        with ThreadPoolExecutor(max_workers=workers) as pool:
+            list(pool.map(one, blocks))
+
+
+def _compiled(backend: str):  # noqa: ANN202 - the numba kernel or None
+    if backend == "numpy":
+        return None
+    try:
+        from ._forward_spheres_jit import lead_block
+    except ImportError:
+        if backend == "numba":
+            raise UsageError(f"forward solver '{NAME}': backend 'numba' asked for but numba is not "
+                             f"importable") from None
+        return None
+    return lead_block
+
+
 def _make_evaluate(conductor: VolumeConductor, dirs: np.ndarray, ref_row: int | None,
                    params: Mapping[str, Any]):  # noqa: ANN202
+    kernel = _compiled(str(params["backend"]))
     radii = conductor.radii
     sig = conductor.conductivities
     radius = float(radii[-1])
@@ -85,6 +111,9 @@ def _make_evaluate(conductor: VolumeConductor, dirs: np.ndarray, ref_row: int | 
         if m == 0:
             return out
         weights = series.weights_for(radii, sig, float(b.max()) / radius, tol)
+        if kernel is not None:
+            return _evaluate_compiled(kernel, dirs, src, nrm, out, weights, radius, tol, gain, ref_row,
+                                      per_chunk, workers)
         order = np.argsort(b, kind="stable")
         blocks = [order[i:i + per_chunk] for i in range(0, m, per_chunk)]
 
@@ -95,12 +124,7 @@ def _make_evaluate(conductor: VolumeConductor, dirs: np.ndarray, ref_row: int | 
             cols = idx if nrm is not None else (3 * idx[:, None] + np.arange(3)).ravel()
             flat[:, cols] = block.reshape(len(dirs), -1)
 
-        if workers == 1 or len(blocks) == 1:
-            for idx in blocks:
-                one(idx)
-        else:
-            with ThreadPoolExecutor(max_workers=workers) as pool:
-                list(pool.map(one, blocks))
+        _run_blocks(one, blocks, workers)
         out *= gain
         if ref_row is None:
             out -= out.mean(axis=0, keepdims=True)
@@ -109,6 +133,28 @@ def _make_evaluate(conductor: VolumeConductor, dirs: np.ndarray, ref_row: int | 
         return out
 
     return evaluate
+
+
+def _evaluate_compiled(kernel, dirs: np.ndarray, src: np.ndarray, nrm: np.ndarray | None,  # noqa: ANN001
+                       out: np.ndarray, weights: tuple, radius: float, tol: float, gain: float,
+                       ref_row: int | None, per_chunk: int, workers: int) -> np.ndarray:
+    """Fill ``out`` with the compiled kernel, contiguous source blocks on a thread pool (the kernel drops the GIL)."""
+    if len(dirs) == 0:
+        return out
+    c, delta, c_inf, alpha = weights
+    flat = out.reshape(len(dirs), -1)
+    fixed = nrm is not None
+    normals = nrm if fixed else np.empty((0, 3))
+    ref = -1 if ref_row is None else int(ref_row)
+    m = len(src)
+    blocks = [np.arange(i, min(m, i + per_chunk)) for i in range(0, m, per_chunk)]
+
+    def one(idx: np.ndarray) -> None:
+        kernel(dirs, src, normals, fixed, idx, flat, c, delta, c_inf, alpha, radius, tol, series.F_DIRECT,
+               gain, ref)
+
+    _run_blocks(one, blocks, workers)
+    return out
 
 
 def build(conductor: VolumeConductor, sensor_labels: Sequence[str], sensor_positions: np.ndarray, *,
@@ -126,7 +172,7 @@ def build(conductor: VolumeConductor, sensor_labels: Sequence[str], sensor_posit
         ``"average"`` or one of ``sensor_labels``.
     **options
         ``tolerance`` (float, relative), ``workers`` (int, 0 = auto),
-        ``chunk_elements`` (int).
+        ``chunk_elements`` (int), ``backend`` (``"auto"``, ``"numba"``, ``"numpy"``).
 
     Returns
     -------
@@ -148,6 +194,9 @@ def _build(conductor: VolumeConductor, sensor_labels: Sequence[str], sensor_posi
     if unknown:
         raise UsageError(f"unknown option(s) for forward solver '{NAME}': {', '.join(sorted(unknown))}")
     params = {**DEFAULTS, **options}
+    if params["backend"] not in BACKENDS:
+        raise UsageError(f"forward solver '{NAME}': backend must be one of {', '.join(BACKENDS)}, "
+                         f"got {params['backend']!r}")
     if not 0 < float(params["tolerance"]) < 1:
         raise UsageError(f"forward solver '{NAME}': tolerance must be in (0, 1), got {params['tolerance']}")
     labels = tuple(sensor_labels)
