@@ -25,7 +25,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 import scipy.sparse as sp
 
-from prep.geometry.layers import face_normals
+from prep.geometry.layers import face_normals, inside
 
 FOUR_PI = 4.0 * np.pi
 
@@ -43,6 +43,22 @@ def _compiled():  # noqa: ANN202 - the numba kernel or None
     except ImportError:
         return None
     return linear_weights
+
+
+def inside_closed(points: np.ndarray, vertices: np.ndarray, faces: np.ndarray) -> np.ndarray:
+    """(m,) bool: points enclosed by a closed outward mesh (total solid angle > 2 pi).
+
+    The compiled winding-number kernel (parallel over points) when numba is
+    importable, else :func:`prep.geometry.layers.inside`; same test, same threshold.
+    """
+    p = np.ascontiguousarray(points, dtype=float).reshape(-1, 3)
+    try:
+        from ._forward_bem_jit import solid_angle_sums
+    except ImportError:
+        return inside(p, vertices, faces)
+    total = solid_angle_sums(p, np.ascontiguousarray(vertices, dtype=float),
+                             np.ascontiguousarray(faces, dtype=np.int64))
+    return np.abs(total) > 2.0 * np.pi
 
 
 def _dot3(r: np.ndarray, m: np.ndarray) -> np.ndarray:
@@ -89,23 +105,21 @@ class LinearDoubleLayer:
         self.edge_len_sq_face = [np.einsum("ij,ij->i", x[(e + 1) % 3] - x[e], x[(e + 1) % 3] - x[e])
                                  for e in range(3)]
         coef = np.zeros((3, 3, len(f)))
-        face_t = []
         for e in range(3):
             de = x[(e + 1) % 3] - x[e]
             le = np.linalg.norm(de, axis=1)
             te = np.divide(de, le[:, None], out=np.zeros_like(de), where=le[:, None] > 0)
-            face_t.append(te)
             m = np.cross(te, n)
             for c in range(3):
                 coef[c, e] = np.einsum("ij,ij->i", g[c], m)
         self.coef = coef
         self.scatter = _faces_scatter(f, len(v))
-        # per-face layout of the compiled kernel
-        self.jit_args = (np.ascontiguousarray(np.stack(x, axis=1)), np.ascontiguousarray(n),
+        # layout of the compiled kernel: shared vertices and unique edges, per-face constants
+        self.jit_args = (v, np.ascontiguousarray(edges, dtype=np.int64),
+                         np.ascontiguousarray(self.face_edge.T, dtype=np.int64), np.ascontiguousarray(n),
                          np.ascontiguousarray(np.stack(g, axis=1)),
                          np.ascontiguousarray(np.stack(self.one_minus_gx, axis=1)),
-                         np.ascontiguousarray(coef.transpose(2, 0, 1)),
-                         np.ascontiguousarray(np.stack(face_t, axis=1)), f)
+                         np.ascontiguousarray(coef.transpose(2, 0, 1)), f)
 
     def weights(self, points: np.ndarray, block: int = 24, threads: int | None = None,
                 backend: str = "auto") -> np.ndarray:
@@ -186,10 +200,27 @@ def infinite_potentials(points: np.ndarray, positions: np.ndarray, normals: np.n
     ``points`` (n, 3) metres, ``positions`` (m, 3) metres. Returns (n, m) for
     moments along ``normals`` (m, 3), else (n, 3m) with x, y, z per dipole
     adjacent. g = p . (r - r0) / (4 pi |r - r0|^3).
+
+    Works on the three (n, m) coordinate differences (exact, no expanded
+    distances) with in-place operations: no (n, m, 3) temporary.
     """
-    d = points[:, None, :] - positions[None, :, :]
-    r3 = np.einsum("nmi,nmi->nm", d, d) ** 1.5
-    d /= (FOUR_PI * r3)[:, :, None]
+    r = np.asarray(points, dtype=float)
+    q = np.asarray(positions, dtype=float)
+    d = [r[:, c:c + 1] - q[None, :, c] for c in range(3)]
+    inv = d[0] * d[0]
+    inv += d[1] * d[1]
+    inv += d[2] * d[2]
+    np.multiply(inv, np.sqrt(inv), out=inv)
+    inv *= FOUR_PI
+    np.divide(1.0, inv, out=inv)          # 1 / (4 pi |r - r0|^3)
     if normals is not None:
-        return np.einsum("nmi,mi->nm", d, normals)
-    return d.reshape(len(points), -1)
+        nrm = np.asarray(normals, dtype=float)
+        g = d[0] * nrm[None, :, 0]
+        g += d[1] * nrm[None, :, 1]
+        g += d[2] * nrm[None, :, 2]
+        g *= inv
+        return g
+    out = np.empty((len(r), len(q), 3))
+    for c in range(3):
+        np.multiply(d[c], inv, out=out[:, :, c])
+    return out.reshape(len(r), -1)
