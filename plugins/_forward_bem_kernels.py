@@ -48,17 +48,36 @@ def _compiled():  # noqa: ANN202 - the numba kernel or None
 def inside_closed(points: np.ndarray, vertices: np.ndarray, faces: np.ndarray) -> np.ndarray:
     """(m,) bool: points enclosed by a closed outward mesh (total solid angle > 2 pi).
 
-    The compiled winding-number kernel (parallel over points) when numba is
+    Points strictly inside a ball about the vertex centroid that no face's
+    plane enters are inside without any solid angle (exact: a point's distance
+    to a triangle is at least its distance to the triangle's plane, so the
+    ball misses the surface, and the centre is tested first). The others get
+    the compiled winding-number kernel (parallel over points) when numba is
     importable, else :func:`prep.geometry.layers.inside`; same test, same threshold.
     """
     p = np.ascontiguousarray(points, dtype=float).reshape(-1, 3)
+    v = np.ascontiguousarray(vertices, dtype=float)
+    f = np.ascontiguousarray(faces, dtype=np.int64)
     try:
         from ._forward_bem_jit import solid_angle_sums
     except ImportError:
-        return inside(p, vertices, faces)
-    total = solid_angle_sums(p, np.ascontiguousarray(vertices, dtype=float),
-                             np.ascontiguousarray(faces, dtype=np.int64))
-    return np.abs(total) > 2.0 * np.pi
+        def winding(q: np.ndarray) -> np.ndarray:
+            return inside(q, v, f)
+    else:
+        def winding(q: np.ndarray) -> np.ndarray:
+            return np.abs(solid_angle_sums(q, v, f)) > 2.0 * np.pi
+    centre = v.mean(axis=0)
+    n, _ = face_normals(v, f)
+    radius = float(np.abs(np.einsum("ij,ij->i", n, v[f[:, 0]] - centre)).min()) if len(f) else 0.0
+    sure = np.zeros(len(p), dtype=bool)
+    if radius > 0.0 and winding(centre[None, :])[0]:
+        rel = p - centre
+        sure = np.einsum("ij,ij->i", rel, rel) < (radius * (1.0 - 1e-9)) ** 2
+    out = sure.copy()
+    rest = np.flatnonzero(~sure)
+    if len(rest):
+        out[rest] = winding(np.ascontiguousarray(p[rest]))
+    return out
 
 
 def _dot3(r: np.ndarray, m: np.ndarray) -> np.ndarray:
