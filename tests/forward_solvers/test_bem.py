@@ -232,3 +232,20 @@ def test_electrode_rows_only_equal_cached_scalp_solution(model_162) -> None:
     direct = forward_bem.build(model_162.conductor, model_162.sensor_labels, _electrodes(), cache=False)
     np.testing.assert_allclose(direct.arrays["transfer"], model_162.arrays["transfer"],
                                atol=1e-9 * np.abs(model_162.arrays["transfer"]).max())
+
+
+def test_inside_closed_matches_core_winding_number() -> None:
+    # the ball pre-filter and the compiled kernel give the core's answer (prep.geometry.layers.inside)
+    from prep.geometry.layers import inside
+    from prep_plugins._forward_bem_kernels import inside_closed
+
+    v, f = icosphere(2)
+    rng = np.random.default_rng(3)
+    for scale in (np.array([0.95, 1.1, 1.0]), np.array([1.0, 0.4, 1.0])):
+        vv = v * 0.09 * scale
+        pts = np.vstack([rng.uniform(-0.1, 0.1, size=(300, 3)), vv * 0.999, vv * 1.001])
+        np.testing.assert_array_equal(inside_closed(pts, vv, f), inside(pts, vv, f))
+    dent = v * 0.09
+    dent[dent[:, 2] > 0.06] *= 0.2          # a deep dent over the top: a non-convex mesh
+    pts = rng.uniform(-0.1, 0.1, size=(300, 3))
+    np.testing.assert_array_equal(inside_closed(pts, dent, f), inside(pts, dent, f))
