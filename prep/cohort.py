@@ -288,6 +288,12 @@ def run_cohort(cohort: Cohort, *, workers: int = 1, scheduler: str | None = None
     return sorted(results, key=lambda r: order[r["subject"]])
 
 
+def _lost(task: SubjectTask, error: str) -> dict[str, Any]:
+    """The result of a subject whose worker never returned one."""
+    return {"subject": task.subject, "bundle": task.bundle, "status": "error", "verdict": None,
+            "summary": {}, "codes": [], "error": error}
+
+
 def _run_processes(tasks: list[SubjectTask], workers: int, report: bool,
                    done: Callable[[dict[str, Any]], None]) -> list[dict[str, Any]]:
     import multiprocessing
@@ -304,9 +310,7 @@ def _run_processes(tasks: list[SubjectTask], workers: int, report: bool,
             try:
                 r = fut.result()
             except Exception as exc:  # the worker process itself died
-                t = futs[fut]
-                r = {"subject": t.subject, "status": "error", "error": f"worker died: {exc}", "codes": [],
-                     "verdict": None, "summary": {}, "bundle": t.bundle}
+                r = _lost(futs[fut], f"worker died: {exc}")
             results.append(r)
             done(r)
     return results
@@ -337,9 +341,7 @@ def _run_dask(tasks: list[SubjectTask], workers: int, scheduler: str | None, rep
             try:
                 r = fut.result()
             except Exception as exc:
-                t = by_key[fut.key]
-                r = {"subject": t.subject, "status": "error", "error": f"worker failed: {exc}", "codes": [],
-                     "verdict": None, "summary": {}, "bundle": t.bundle}
+                r = _lost(by_key[fut.key], f"worker failed: {exc}")
             results.append(r)
             done(r)
     finally:

@@ -162,17 +162,18 @@ def step_align(registry: Registry, recipe: Recipe, inputs: SubjectInputs) -> Ste
     eeg = placed.eeg_mask
     if eeg.sum() < 3:
         raise UsageError(f"{recipe.inputs['sensors']}: fewer than three scalp (EEG) electrodes to model")
-    on, signed, _ = closest_points(inputs.scalp.vertices, inputs.scalp.faces, placed.positions[eeg])
-    labels = [lab for lab, k in zip(placed.labels, eeg) if k]
+    scalp_eeg = placed.select(eeg)
+    on, signed, _ = closest_points(inputs.scalp.vertices, inputs.scalp.faces, scalp_eeg.positions)
+    labels = list(scalp_eeg.labels)
     codes: dict[str, list[str]] = {lab: [] for lab in labels}
     for f in res.findings:
         for s in f.subjects:
             if s in codes:
                 codes[s].append(f.code)
     per = [{"label": lab, "signed_distance_m": float(d), "shift_m": float(np.linalg.norm(a - b)),
-            "codes": sorted(set(codes[lab]))} for lab, d, a, b in zip(labels, signed, placed.positions[eeg], on)]
+            "codes": sorted(set(codes[lab]))} for lab, d, a, b in zip(labels, signed, scalp_eeg.positions, on)]
     t: Transform = res.alignment.transform
-    arrays = {"sensor_digitized": placed.positions[eeg], "sensor_positions": on,
+    arrays = {"sensor_digitized": scalp_eeg.positions, "sensor_positions": on,
               "placement_signed_distance": signed}
     if len(placed.headshape):
         arrays["headshape_points"] = placed.headshape
@@ -183,8 +184,8 @@ def step_align(registry: Registry, recipe: Recipe, inputs: SubjectInputs) -> Ste
         "alignment": {"method": method, "options": opts, "metrics": dict(res.alignment.metrics)},
         "placement": {"per_electrode": per, "metrics": dict(res.report.metrics)},
         "sensors": {"labels": labels,
-                    "kinds": [k for k, m in zip(placed.kinds, eeg) if m],
-                    "original_labels": [o for o, m in zip(placed.original_labels, eeg) if m],
+                    "kinds": list(scalp_eeg.kinds),
+                    "original_labels": list(scalp_eeg.original_labels),
                     "fiducials": {k: v.tolist() for k, v in placed.fiducials.items()},
                     "excluded_channels": [lab for lab, m in zip(placed.labels, eeg) if not m]},
     }
@@ -500,7 +501,7 @@ def _write(registry: Registry, recipe: Recipe, inputs: SubjectInputs, path: Path
         "sensors": int(lf.shape[0]), "sources": int(lf.shape[1]),
         "fit_rms_mm": _mm(align.meta["alignment"]["metrics"].get("rms_m")),
         "condition_number": _find_number(cond, "condition_number"),
-        "localisation_error_median_mm": _find_number(_find_dict(cond, "peak_localisation_error"), "p50_mm"),
+        "localisation_error_median_mm": _find_number(_find(cond, "peak_localisation_error", dict), "p50_mm"),
         "head_model": forward.meta["head_model"]["kind"],
         "flagged_electrodes": sum(bool(e["codes"]) for e in align.meta["placement"]["per_electrode"]),
         "findings": {s: sum(f.severity == s for f in findings) for s in ("fail", "warn", "info")},
@@ -512,25 +513,18 @@ def _mm(x: Any) -> float | None:
     return None if x is None else round(float(x) * 1e3, 3)
 
 
-def _find_dict(doc: Any, key: str) -> Any:
-    """First mapping stored under ``key`` anywhere in a nested dict, or None."""
+def _find(doc: Any, key: str, kind: type | tuple[type, ...]) -> Any:
+    """First value of type ``kind`` under ``key`` anywhere in a nested dict (passport metrics are keyed by check)."""
     if isinstance(doc, dict):
-        if isinstance(doc.get(key), dict):
+        if isinstance(doc.get(key), kind) and not isinstance(doc.get(key), bool):
             return doc[key]
         for v in doc.values():
-            found = _find_dict(v, key)
+            found = _find(v, key, kind)
             if found is not None:
                 return found
     return None
 
 
 def _find_number(doc: Any, key: str) -> float | None:
-    """First value under ``key`` anywhere in a nested dict (passport metrics are keyed by check)."""
-    if isinstance(doc, dict):
-        if key in doc and isinstance(doc[key], (int, float)):
-            return float(doc[key])
-        for v in doc.values():
-            found = _find_number(v, key)
-            if found is not None:
-                return found
-    return None
+    found = _find(doc, key, (int, float))
+    return None if found is None else float(found)

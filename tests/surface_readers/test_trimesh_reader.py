@@ -84,20 +84,16 @@ def test_garbage_raises_read_error_naming_file(reg, tmp_path: Path, ext: str, co
     assert str(path) in str(err.value)
 
 
-def test_obj_bad_record_names_line(reg, tmp_path: Path) -> None:
-    path = tmp_path / "bad.obj"
-    path.write_text("# made up\nv 0 0 0\nv 1 0 0\nv 0 1 zero\nf 1 2 3\n")
+@pytest.mark.parametrize("name, text, line", [
+    ("bad.obj", "# made up\nv 0 0 0\nv 1 0 0\nv 0 1 zero\nf 1 2 3\n", 4),   # non-numeric vertex
+    ("bad.off", "OFF\n3 1 0\n0 0 0\n1 0 0\n0 1 0\n3 0 1 7\n", 6),           # face index out of range
+])
+def test_bad_record_names_line(reg, tmp_path: Path, name: str, text: str, line: int) -> None:
+    path = tmp_path / name
+    path.write_text(text)
     with pytest.raises(ReadError) as err:
         read_surface(reg, path, "cortex")
-    assert err.value.line == 4
-
-
-def test_off_bad_index_names_line(reg, tmp_path: Path) -> None:
-    path = tmp_path / "bad.off"
-    path.write_text("OFF\n3 1 0\n0 0 0\n1 0 0\n0 1 0\n3 0 1 7\n")
-    with pytest.raises(ReadError) as err:
-        read_surface(reg, path, "cortex")
-    assert err.value.line == 6
+    assert err.value.line == line
 
 
 def test_unknown_unit_is_read_error(reg, tmp_path: Path) -> None:
